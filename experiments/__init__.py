@@ -1,0 +1,1 @@
+"""Orchestration: the command line, comparisons, sweeps, sizing, charts and the report."""

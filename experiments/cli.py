@@ -1,0 +1,112 @@
+"""The `liftsort` command line.
+
+Each command's work lives in its own module (``experiments/*_command.py``),
+imported only when that command runs, so that `liftsort calc` never loads
+numba, pandas or seaborn. Errors in input files or options print one
+paragraph and exit with status 2, without a traceback.
+"""
+from __future__ import annotations
+
+import argparse
+import importlib
+import math
+import sys
+from importlib import resources
+
+from roundtrip import __version__
+from roundtrip.inputfile import InputError, load_scenario
+
+EXIT_BAD_INPUT = 2
+
+
+def demo_building_path():
+    """The built-in invented demo building's input file."""
+    return resources.files("experiments") / "data" / "demo_building.toml"
+
+
+# ------------------------------------------------------------ option types
+def _number(low: float, low_open: bool, what: str):
+    def parse(text: str) -> float:
+        try:
+            value = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number; {what}") from None
+        if not math.isfinite(value) or value < low or (low_open and value == low):
+            raise argparse.ArgumentTypeError(f"{text} is out of range; {what}")
+        return value
+    return parse
+
+
+def _whole(low: int, what: str):
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; {what}") from None
+        if value < low:
+            raise argparse.ArgumentTypeError(f"{text} is out of range; {what}")
+        return value
+    return parse
+
+
+passengers_type = _number(0.0, False, "P must be a number of passengers per trip >= 0 [persons]")
+trials_type = _whole(1, "N must be a whole number of trials >= 1")
+seed_type = _whole(0, "S must be a whole number >= 0")
+
+
+def _add_file(p: argparse.ArgumentParser) -> None:
+    p.add_argument("file", metavar="FILE", help="building input file (TOML); see README.md")
+
+
+def _add_json(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--json", action="store_true",
+                   help="print exactly one JSON object on stdout instead of a table")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="liftsort",
+        description="Lift-traffic planning estimates: the classical up-peak calculation, "
+                    "Monte Carlo round trips, and conventional against destination-grouped "
+                    "allocation. Results are planning estimates; final design must be "
+                    "checked by a qualified lift engineer.")
+    parser.add_argument("--version", action="version", version=f"liftsort {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+
+    calc = sub.add_parser(
+        "calc", help="classical up-peak round-trip time, interval and handling capacity",
+        description="Classical up-peak calculation (ISO 8100-32 / CIBSE Guide D formulae). "
+                    "With --passengers, at that car load; otherwise in demand mode, at the car "
+                    "load that carries traffic.arrival_rate_pct_5min.")
+    _add_file(calc)
+    calc.add_argument("--passengers", metavar="P", type=passengers_type,
+                      help="passengers per trip [persons], a real number >= 0 (given-load mode)")
+    calc.add_argument("--poisson", action="store_true",
+                      help="use the Poisson-passenger forms of S and H")
+    _add_json(calc)
+    calc.set_defaults(handler="experiments.calc_command")
+
+    demo = sub.add_parser(
+        "demo", help="run the main job on the built-in invented demo building",
+        description="Run liftsort's main job on the built-in invented demo building "
+                    "(Larkspur Exchange) and print the results.")
+    demo.set_defaults(handler="experiments.demo_command", file=None)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    try:
+        scenario = load_scenario(args.file) if args.file is not None else None
+        module = importlib.import_module(args.handler)
+        return module.run(args, scenario)
+    except InputError as exc:
+        print(f"liftsort {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_BAD_INPUT
+    except BrokenPipeError:
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

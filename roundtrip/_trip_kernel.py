@@ -1,0 +1,222 @@
+"""Compiled kernels of the Monte Carlo round trip (numba, ``cache=True``).
+
+Arrays in, arrays out: no policy, no random state. The plain Python API in
+:mod:`roundtrip.montecarlo` validates inputs, owns the random stream and
+chooses what to run; :mod:`tests.reference_trip` holds the slow, obviously
+correct twin that these kernels must equal exactly.
+
+The trip model of one car (documented with a worked trip in
+``docs/trip_model.md``):
+
+* it leaves the lobby (floor 0), stops in ascending order at every origin and
+  destination of its up-travelling passengers, reverses at the highest call,
+  stops in descending order at every origin and destination of its
+  down-travelling passengers, and returns to the lobby;
+* at each stop passengers alight first, then board in arrival order while the
+  load is below the rated load; a passenger who would take the car above it
+  is left behind (their call is still answered, their destination is not);
+* time = flights between consecutive stops (in trip order, from the
+  flight-time table) + stops x (door open + door close + start delay), the
+  lobby counted once + boardings x t_in + alightings x t_out, summed in that
+  order.
+
+Stops are held in 64-bit masks (bit f for floor f), hence at most 63 served
+floors above the lobby.
+"""
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, prange
+
+# Columns of the integer result array of a trip.
+STOPS, HIGHEST, LOWEST, BOARDED, PEAK_LOAD, LEFT_BEHIND, OFFERED = range(7)
+N_COUNTS = 7
+
+
+@njit(cache=True)
+def _sample_cells(uniforms, alias_prob, alias_cell, n_levels, origin_out, dest_out):
+    """Origin-destination pairs from uniforms by the alias method (one uniform each).
+
+    A uniform u picks column k = floor(u K) of the K-cell alias table and uses
+    the fraction u K - k to choose between the column's own cell and its alias.
+    """
+    K = alias_prob.shape[0]
+    for i in range(uniforms.shape[0]):
+        x = uniforms[i] * K
+        k = int(x)
+        if k >= K:
+            k = K - 1
+        cell = k if (x - k) < alias_prob[k] else alias_cell[k]
+        origin_out[i] = cell // n_levels
+        dest_out[i] = cell % n_levels
+
+
+@njit(cache=True)
+def _sweep(orig, dest, n, up, capacity, order, alight, stop_mask_out):
+    """Board and alight one direction's passengers floor by floor.
+
+    ``order`` (scratch) receives this direction's passengers sorted by origin
+    (ascending for up, descending for down), stable in arrival order; the
+    sweep then boards each in turn while the load is below ``capacity``.
+    Returns (stop mask, boarded, peak load, left behind, origin-0 or dest-0 traffic).
+    """
+    m = 0
+    for i in range(n):
+        if (dest[i] > orig[i]) == up and dest[i] != orig[i]:
+            # stable insertion by origin
+            o = orig[i]
+            pos = m
+            if up:
+                while pos > 0 and orig[order[pos - 1]] > o:
+                    order[pos] = order[pos - 1]
+                    pos -= 1
+            else:
+                while pos > 0 and orig[order[pos - 1]] < o:
+                    order[pos] = order[pos - 1]
+                    pos -= 1
+            order[pos] = i
+            m += 1
+    mask = np.uint64(0)
+    one = np.uint64(1)
+    load = 0
+    peak = 0
+    boarded = 0
+    left = 0
+    lobby = False
+    if m == 0:
+        stop_mask_out[0] = mask
+        return 0, 0, 0, False
+    n_levels = alight.shape[0]
+    for f in range(n_levels):
+        alight[f] = 0
+    # floors are passed in travel order; ``g`` is the last floor whose alightings are done
+    g = orig[order[0]]
+    load -= alight[g]
+    for r in range(m):
+        i = order[r]
+        o = orig[i]
+        if up:
+            while g < o:
+                g += 1
+                load -= alight[g]
+        else:
+            while g > o:
+                g -= 1
+                load -= alight[g]
+        mask |= one << np.uint64(o)
+        if load < capacity:
+            load += 1
+            boarded += 1
+            alight[dest[i]] += 1
+            mask |= one << np.uint64(dest[i])
+            if load > peak:
+                peak = load
+            if dest[i] == 0:
+                lobby = True
+        else:
+            left += 1
+        if o == 0:
+            lobby = True
+    stop_mask_out[0] = mask
+    return boarded, peak, left, lobby
+
+
+@njit(cache=True)
+def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
+             transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out):
+    """Time one car's round trip with its ``n`` passengers (first n of orig, dest).
+
+    Writes the trip's integer figures into ``counts_out`` (see the column
+    constants) and returns the round-trip time [s].
+    """
+    n_levels = flight_s.shape[0]
+    b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, capacity,
+                                              scratch_order, scratch_alight, scratch_mask)
+    up_mask = scratch_mask[0]
+    b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, capacity,
+                                              scratch_order, scratch_alight, scratch_mask)
+    dn_mask = scratch_mask[0]
+    one = np.uint64(1)
+    flight = 0.0
+    pos = 0
+    stops = 0
+    lowest = -1
+    for f in range(1, n_levels):                      # up journey, ascending
+        if (up_mask >> np.uint64(f)) & one:
+            flight += flight_s[pos, f]
+            pos = f
+            stops += 1
+            if lowest < 0:
+                lowest = f
+    for f in range(n_levels - 1, 0, -1):              # down journey, descending
+        if (dn_mask >> np.uint64(f)) & one:
+            if f != pos:
+                flight += flight_s[pos, f]
+                pos = f
+                stops += 1
+            if lowest < 0 or f < lowest:
+                lowest = f
+    highest = 0
+    for f in range(n_levels - 1, 0, -1):
+        if ((up_mask | dn_mask) >> np.uint64(f)) & one:
+            highest = f
+            break
+    flight += flight_s[pos, 0]                        # return to the lobby
+    if lobby_up or lobby_dn or lowest < 0:
+        lowest = 0
+    boarded = b_up + b_dn
+    total_stops = stops + 1                           # the lobby, once per trip
+    time = flight + total_stops * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s
+    counts_out[STOPS] = stops
+    counts_out[HIGHEST] = highest
+    counts_out[LOWEST] = lowest
+    counts_out[BOARDED] = boarded
+    counts_out[PEAK_LOAD] = max(peak_up, peak_dn)
+    counts_out[LEFT_BEHIND] = left_up + left_dn
+    counts_out[OFFERED] = n
+    return time
+
+
+@njit(cache=True)
+def _single_car_block(orig, dest, offsets, first, last, flight_s, capacity, stop_overhead_s,
+                      transfer_in_s, transfer_out_s, rtt_out, counts_out):
+    """Trips ``first`` .. ``last - 1``; trip t's passengers are offsets[t]:offsets[t+1]."""
+    n_levels = flight_s.shape[0]
+    longest = 0
+    for t in range(first, last):
+        longest = max(longest, offsets[t + 1] - offsets[t])
+    order = np.empty(max(longest, 1), np.int64)
+    alight = np.empty(n_levels, np.int64)
+    mask = np.empty(1, np.uint64)
+    for t in range(first, last):
+        s = offsets[t]
+        e = offsets[t + 1]
+        rtt_out[t] = car_trip(orig[s:e], dest[s:e], e - s, flight_s, capacity, stop_overhead_s,
+                              transfer_in_s, transfer_out_s, order, alight, mask, counts_out[t])
+
+
+@njit(cache=True, parallel=True)
+def single_car_trips(orig, dest, offsets, flight_s, capacity, stop_overhead_s, transfer_in_s,
+                     transfer_out_s, n_blocks, rtt_out, counts_out):
+    """Every trial is one car's trip; trials are split into ``n_blocks`` run in parallel.
+
+    Each trial's result depends only on its own passengers, so the numbers are
+    the same for any thread count.
+    """
+    n_trials = offsets.shape[0] - 1
+    for b in prange(n_blocks):
+        first = b * n_trials // n_blocks
+        last = (b + 1) * n_trials // n_blocks
+        _single_car_block(orig, dest, offsets, first, last, flight_s, capacity,
+                          stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out, counts_out)
+
+
+@njit(cache=True, parallel=True)
+def sample_cells(uniforms, alias_prob, alias_cell, n_levels, n_blocks, origin_out, dest_out):
+    """Parallel :func:`_sample_cells` over ``n_blocks`` contiguous blocks."""
+    n = uniforms.shape[0]
+    for b in prange(n_blocks):
+        first = b * n // n_blocks
+        last = (b + 1) * n // n_blocks
+        _sample_cells(uniforms[first:last], alias_prob, alias_cell, n_levels,
+                      origin_out[first:last], dest_out[first:last])

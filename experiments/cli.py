@@ -50,7 +50,8 @@ def _whole(low: int, what: str):
 
 
 passengers_type = _number(0.0, False, "P must be a number of passengers per trip >= 0 [persons]")
-trials_type = _whole(1, "N must be a whole number of trials >= 1")
+trials_type = _whole(2, "N must be a whole number of trials >= 2")
+ci_type = _number(0.0, True, "PCT must be a percentage > 0")
 seed_type = _whole(0, "S must be a whole number >= 0")
 
 
@@ -61,6 +62,21 @@ def _add_file(p: argparse.ArgumentParser) -> None:
 def _add_json(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true",
                    help="print exactly one JSON object on stdout instead of a table")
+
+
+def _add_run_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--trials", metavar="N", type=trials_type,
+                   help="run exactly N trials instead of stopping on --ci-target")
+    p.add_argument("--ci-target", metavar="PCT", type=ci_type, default=0.5,
+                   help="stop when the 95 %% half-width of the round-trip time is at most "
+                        "PCT %% of its mean (default 0.5)")
+    p.add_argument("--max-trials", metavar="N", type=trials_type, default=2_000_000,
+                   help="trial cap of the adaptive run (default 2,000,000)")
+    p.add_argument("--seed", metavar="S", type=seed_type, default=2026,
+                   help="seed of the random stream; the same seed gives the same numbers "
+                        "(default 2026)")
+    p.add_argument("--threads", metavar="T", type=_whole(1, "T must be a whole number of threads >= 1"),
+                   help="compute threads (default: all cores); results do not depend on it")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -85,6 +101,24 @@ def build_parser() -> argparse.ArgumentParser:
                       help="use the Poisson-passenger forms of S and H")
     _add_json(calc)
     calc.set_defaults(handler="experiments.calc_command")
+
+    sim = sub.add_parser(
+        "simulate", help="Monte Carlo round trips of one car, with 95 % confidence intervals",
+        description="Monte Carlo simulation of single round trips on the real floor levels with "
+                    "ideal jerk-limited flights, any traffic mix, and rated-load limits. With "
+                    "--passengers, at that mean load; otherwise at the load the demand sets "
+                    "(fixed point P = lambda RTT / cars).")
+    _add_file(sim)
+    sim.add_argument("--passengers", metavar="P", type=passengers_type,
+                     help="mean passengers offered per trip [persons], >= 0")
+    counts = sim.add_mutually_exclusive_group()
+    counts.add_argument("--fixed", action="store_true",
+                        help="fixed passenger counts (a real P mixes the two nearest integers)")
+    counts.add_argument("--poisson", action="store_true",
+                        help="Poisson passenger counts with mean P (the default)")
+    _add_run_options(sim)
+    _add_json(sim)
+    sim.set_defaults(handler="experiments.simulate_command")
 
     demo = sub.add_parser(
         "demo", help="run the main job on the built-in invented demo building",

@@ -1,0 +1,74 @@
+"""`liftsort simulate`: Monte Carlo round trips of one car, beside the classical figures."""
+from __future__ import annotations
+
+from roundtrip.building import Scenario
+from roundtrip.inputfile import InputError
+
+from .tables import dumps, grid_table
+from .wording import CAUTION
+
+
+def monte_carlo_result(scenario: Scenario, args):
+    from roundtrip.montecarlo import simulate_demand, simulate_trips
+    run = dict(poisson=not args.fixed, trials=args.trials, ci_target_pct=args.ci_target,
+               max_trials=args.max_trials, seed=args.seed, threads=args.threads)
+    if args.passengers is not None:
+        return simulate_trips(scenario.building, scenario.group, args.passengers,
+                              traffic=scenario.traffic, **run)
+    if scenario.traffic is None:
+        raise InputError(["[traffic] is missing: demand mode needs "
+                          "traffic.arrival_rate_pct_5min; give it, or give --passengers P."],
+                         scenario.source)
+    try:
+        return simulate_demand(scenario.building, scenario.group, scenario.traffic, **run)
+    except ValueError as exc:          # e.g. interfloor traffic with one populated floor
+        raise InputError([str(exc)], scenario.source) from None
+
+
+def run(args, scenario: Scenario) -> int:
+    from .calc_command import classical_result
+    try:
+        r = monte_carlo_result(scenario, args)
+    except ValueError as exc:
+        raise InputError([str(exc)], scenario.source) from None
+    d = r.to_dict()
+    if args.json:
+        print(dumps(d))
+        return 0
+    c = classical_result(scenario, r.passengers_per_trip, not args.fixed).to_dict()
+    rows = [
+        ["passengers per trip (offered)", d["passengers_per_trip"], None, c["passengers_per_trip"], "persons"],
+        ["passengers carried per trip", d["passengers_carried_per_trip"], None, None, "persons"],
+        ["round-trip time", d["round_trip_time_s"], d["ci95_s"], c["round_trip_time_s"], "s"],
+        ["interval", d["interval_s"], d["ci95_s"] / r.cars, c["interval_s"], "s"],
+        ["stops above the lobby", d["expected_stops"], d["expected_stops_ci95"], c["expected_stops"], "stops"],
+        ["highest reversal floor", d["highest_reversal_floor"], d["highest_reversal_floor_ci95"],
+         c["highest_reversal_floor"], "floor"],
+        ["lowest reversal floor", d["lowest_reversal_floor"], d["lowest_reversal_floor_ci95"], None, "floor"],
+        ["peak car load", d["peak_car_load_persons"], d["peak_car_load_ci95"], None, "persons"],
+        ["handling capacity", d["handling_capacity_persons_5min"], None,
+         c["handling_capacity_persons_5min"], "persons / 5 min"],
+        ["handling capacity", d["handling_capacity_pct_5min"], None, c["handling_capacity_pct_5min"],
+         "% population / 5 min"],
+        ["car load", d["car_load_pct"], None, c["car_load_pct"], "% rated load"],
+        ["average waiting time", d["average_waiting_time_s"], None, c["average_waiting_time_s"], "s"],
+        ["trips with a passenger left behind", 100 * d["left_behind_share"], None, None, "%"],
+    ]
+    title = (f"{scenario.building.name}: Monte Carlo round trips ({r.mode}, "
+             f"{r.passenger_model} passenger counts, {r.trials:,} trials, seed {r.seed})")
+    print(title)
+    print(grid_table(["quantity", "Monte Carlo", "+/- 95 %", "classical", "unit"], rows))
+    if r.mode == "demand":
+        print(f"\ndemand {r.demand_pct_5min:g} % population / 5 min; fixed-point iterations:")
+        print(grid_table(["step", "passengers per trip", "round-trip time [s]", "+/- 95 % [s]"],
+                         [[i, t["passengers_per_trip"], t["round_trip_time_s"], t["ci95_s"]]
+                          for i, t in enumerate(r.trace)]))
+        if r.saturated:
+            print(f"\nSaturated: the group cannot carry this demand. At the design load of "
+                  f"{r.passengers_per_trip:.1f} persons per trip it handles "
+                  f"{d['handling_capacity_pct_5min']:.1f} % of the population in 5 minutes.")
+        elif not r.converged:
+            print("\nThe fixed point did not settle within the iteration limit; "
+                  "the last iterate is shown.")
+    print("\n" + CAUTION)
+    return 0

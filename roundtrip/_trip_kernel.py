@@ -34,11 +34,12 @@ N_COUNTS = 7
 
 
 @njit(cache=True)
-def _sample_cells(uniforms, alias_prob, alias_cell, n_levels, origin_out, dest_out):
+def _sample_cells(uniforms, alias_prob, alias_cell, cell_origin, cell_dest, origin_out, dest_out):
     """Origin-destination pairs from uniforms by the alias method (one uniform each).
 
     A uniform u picks column k = floor(u K) of the K-cell alias table and uses
-    the fraction u K - k to choose between the column's own cell and its alias.
+    the fraction u K - k to choose between the column's own cell and its alias;
+    cell c is the trip cell_origin[c] -> cell_dest[c].
     """
     K = alias_prob.shape[0]
     for i in range(uniforms.shape[0]):
@@ -47,8 +48,8 @@ def _sample_cells(uniforms, alias_prob, alias_cell, n_levels, origin_out, dest_o
         if k >= K:
             k = K - 1
         cell = k if (x - k) < alias_prob[k] else alias_cell[k]
-        origin_out[i] = cell // n_levels
-        dest_out[i] = cell % n_levels
+        origin_out[i] = cell_origin[cell]
+        dest_out[i] = cell_dest[cell]
 
 
 @njit(cache=True)
@@ -121,59 +122,97 @@ def _sweep(orig, dest, n, up, capacity, order, alight, stop_mask_out):
     return boarded, peak, left, lobby
 
 
+# Index of the lowest set bit of a 64-bit word: multiply the isolated bit by a
+# de Bruijn sequence and read the top six bits ("Using de Bruijn sequences to
+# index a 1 in a computer word", MIT LCS technical report, 1998).
+_DEBRUIJN = np.uint64(0x03F79D71B4CB0A89)
+_DEBRUIJN_INDEX = np.array([
+    0, 1, 48, 2, 57, 49, 28, 3, 61, 58, 50, 42, 38, 29, 17, 4,
+    62, 55, 59, 36, 53, 51, 43, 22, 45, 39, 33, 30, 24, 18, 12, 5,
+    63, 47, 56, 27, 60, 41, 37, 16, 54, 35, 52, 21, 44, 32, 23, 11,
+    46, 26, 40, 15, 34, 20, 31, 10, 25, 14, 19, 9, 13, 8, 7, 6], dtype=np.int64)
+
+
+@njit(cache=True, inline="always")
+def _lowest_bit(m):
+    lsb = m & (~m + np.uint64(1))
+    return _DEBRUIJN_INDEX[(lsb * _DEBRUIJN) >> np.uint64(58)]
+
+
 @njit(cache=True)
 def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
-             transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out):
+             transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row):
     """Time one car's round trip with its ``n`` passengers (first n of orig, dest).
 
-    Writes the trip's integer figures into ``counts_out`` (see the column
+    Writes the trip's integer figures into ``counts_out[row]`` (see the column
     constants) and returns the round-trip time [s].
     """
     n_levels = flight_s.shape[0]
-    b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, capacity,
-                                              scratch_order, scratch_alight, scratch_mask)
-    up_mask = scratch_mask[0]
-    b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, capacity,
-                                              scratch_order, scratch_alight, scratch_mask)
-    dn_mask = scratch_mask[0]
     one = np.uint64(1)
+    all_from_lobby = True
+    for i in range(n):
+        if orig[i] != 0:
+            all_from_lobby = False
+            break
+    if all_from_lobby:
+        # Up-peak trip: everyone waits at the lobby, so the first `capacity`
+        # passengers in arrival order board and the rest are left behind.
+        boarded = min(n, capacity)
+        up_mask = np.uint64(0)
+        for i in range(boarded):
+            up_mask |= one << np.uint64(dest[i])
+        dn_mask = np.uint64(0)
+        peak = boarded
+        left = n - boarded
+        lobby = n > 0
+    else:
+        b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, capacity,
+                                                  scratch_order, scratch_alight, scratch_mask)
+        up_mask = scratch_mask[0]
+        b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, capacity,
+                                                  scratch_order, scratch_alight, scratch_mask)
+        dn_mask = scratch_mask[0]
+        boarded = b_up + b_dn
+        peak = max(peak_up, peak_dn)
+        left = left_up + left_dn
+        lobby = lobby_up or lobby_dn
     flight = 0.0
     pos = 0
     stops = 0
     lowest = -1
-    for f in range(1, n_levels):                      # up journey, ascending
-        if (up_mask >> np.uint64(f)) & one:
-            flight += flight_s[pos, f]
-            pos = f
-            stops += 1
-            if lowest < 0:
-                lowest = f
-    for f in range(n_levels - 1, 0, -1):              # down journey, descending
-        if (dn_mask >> np.uint64(f)) & one:
-            if f != pos:
-                flight += flight_s[pos, f]
-                pos = f
-                stops += 1
-            if lowest < 0 or f < lowest:
-                lowest = f
-    highest = 0
-    for f in range(n_levels - 1, 0, -1):
-        if ((up_mask | dn_mask) >> np.uint64(f)) & one:
-            highest = f
-            break
+    m = up_mask & ~one                                # up journey, ascending
+    while m:
+        f = _lowest_bit(m)
+        m &= m - one
+        flight += flight_s[pos, f]
+        pos = f
+        stops += 1
+        if lowest < 0:
+            lowest = f
+    highest = pos
+    if dn_mask & ~one:
+        for f in range(n_levels - 1, 0, -1):          # down journey, descending
+            if (dn_mask >> np.uint64(f)) & one:
+                if f != pos:
+                    flight += flight_s[pos, f]
+                    pos = f
+                    stops += 1
+                if f > highest:
+                    highest = f
+                if lowest < 0 or f < lowest:
+                    lowest = f
     flight += flight_s[pos, 0]                        # return to the lobby
-    if lobby_up or lobby_dn or lowest < 0:
+    if lobby or lowest < 0:
         lowest = 0
-    boarded = b_up + b_dn
     total_stops = stops + 1                           # the lobby, once per trip
     time = flight + total_stops * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s
-    counts_out[STOPS] = stops
-    counts_out[HIGHEST] = highest
-    counts_out[LOWEST] = lowest
-    counts_out[BOARDED] = boarded
-    counts_out[PEAK_LOAD] = max(peak_up, peak_dn)
-    counts_out[LEFT_BEHIND] = left_up + left_dn
-    counts_out[OFFERED] = n
+    counts_out[row, STOPS] = stops
+    counts_out[row, HIGHEST] = highest
+    counts_out[row, LOWEST] = lowest
+    counts_out[row, BOARDED] = boarded
+    counts_out[row, PEAK_LOAD] = peak
+    counts_out[row, LEFT_BEHIND] = left
+    counts_out[row, OFFERED] = n
     return time
 
 
@@ -192,7 +231,7 @@ def _single_car_block(orig, dest, offsets, first, last, flight_s, capacity, stop
         s = offsets[t]
         e = offsets[t + 1]
         rtt_out[t] = car_trip(orig[s:e], dest[s:e], e - s, flight_s, capacity, stop_overhead_s,
-                              transfer_in_s, transfer_out_s, order, alight, mask, counts_out[t])
+                              transfer_in_s, transfer_out_s, order, alight, mask, counts_out, t)
 
 
 @njit(cache=True, parallel=True)
@@ -212,11 +251,50 @@ def single_car_trips(orig, dest, offsets, flight_s, capacity, stop_overhead_s, t
 
 
 @njit(cache=True, parallel=True)
-def sample_cells(uniforms, alias_prob, alias_cell, n_levels, n_blocks, origin_out, dest_out):
+def sample_cells(uniforms, alias_prob, alias_cell, cell_origin, cell_dest, n_blocks, origin_out,
+                 dest_out):
     """Parallel :func:`_sample_cells` over ``n_blocks`` contiguous blocks."""
     n = uniforms.shape[0]
     for b in prange(n_blocks):
         first = b * n // n_blocks
         last = (b + 1) * n // n_blocks
-        _sample_cells(uniforms[first:last], alias_prob, alias_cell, n_levels,
+        _sample_cells(uniforms[first:last], alias_prob, alias_cell, cell_origin, cell_dest,
                       origin_out[first:last], dest_out[first:last])
+
+
+@njit(cache=True)
+def _sampled_car_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
+                       cell_dest, flight_s, capacity, stop_overhead_s, transfer_in_s,
+                       transfer_out_s, rtt_out, counts_out):
+    """As :func:`_single_car_block`, sampling each trip's passengers from its uniforms
+    into a small buffer first (the passengers never leave the cache)."""
+    n_levels = flight_s.shape[0]
+    longest = 0
+    for t in range(first, last):
+        longest = max(longest, offsets[t + 1] - offsets[t])
+    orig = np.empty(max(longest, 1), np.int64)
+    dest = np.empty(max(longest, 1), np.int64)
+    order = np.empty(max(longest, 1), np.int64)
+    alight = np.empty(n_levels, np.int64)
+    mask = np.empty(1, np.uint64)
+    for t in range(first, last):
+        s = offsets[t]
+        e = offsets[t + 1]
+        _sample_cells(uniforms[s:e], alias_prob, alias_cell, cell_origin, cell_dest, orig, dest)
+        rtt_out[t] = car_trip(orig, dest, e - s, flight_s, capacity, stop_overhead_s,
+                              transfer_in_s, transfer_out_s, order, alight, mask, counts_out, t)
+
+
+@njit(cache=True, parallel=True)
+def sampled_car_trips(uniforms, offsets, alias_prob, alias_cell, cell_origin, cell_dest, flight_s,
+                      capacity, stop_overhead_s, transfer_in_s, transfer_out_s, n_blocks,
+                      rtt_out, counts_out):
+    """Every trial is one car's trip, its passengers drawn from uniforms[offsets[t]:offsets[t+1]]
+    by the alias table; the same numbers as :func:`sample_cells` then :func:`single_car_trips`."""
+    n_trials = offsets.shape[0] - 1
+    for b in prange(n_blocks):
+        first = b * n_trials // n_blocks
+        last = (b + 1) * n_trials // n_blocks
+        _sampled_car_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
+                           cell_dest, flight_s, capacity, stop_overhead_s, transfer_in_s,
+                           transfer_out_s, rtt_out, counts_out)

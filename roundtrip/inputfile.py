@@ -235,35 +235,36 @@ def parse_scenario(data: dict, source: str = "") -> Scenario:
 
 
 def _building(b: dict, raw: dict, out: _Collector) -> Building | None:
+    # Each check runs on its own so that one problem does not hide another.
     floors = b["floors"]
+    rises = None
     if "floor_height_m" in raw and "floor_heights_m" in raw:
         out.note("building.floor_height_m and building.floor_heights_m are both given: "
                  "give one of them (a uniform rise, or a list of rises).")
-        return None
-    if "floor_height_m" not in raw and "floor_heights_m" not in raw:
+    elif "floor_height_m" not in raw and "floor_heights_m" not in raw:
         out.note("building.floor_height_m is missing: give a uniform rise > 0 [m], "
                  "or building.floor_heights_m, a list of rises, one per served floor.")
-        return None
-    rises = b["floor_height_m"] if "floor_height_m" in raw else b["floor_heights_m"]
+    else:
+        rises = b["floor_height_m"] if "floor_height_m" in raw else b["floor_heights_m"]
     pops = b["population"]
+    if floors is not None and isinstance(rises, list) and len(rises) != floors:
+        out.bad("building.floor_heights_m", raw["floor_heights_m"],
+                f"a list of length floors = {floors} (it has {len(rises)})")
+        rises = None
+    if floors is not None and isinstance(pops, list) and len(pops) != floors:
+        out.bad("building.population", raw["population"],
+                f"a number, or a list of length floors = {floors} (it has {len(pops)})")
+        pops = None
+    elif pops is not None and (sum(pops) if isinstance(pops, list) else pops) <= 0:
+        out.bad("building.population", raw["population"],
+                "populations >= 0 with a positive total [persons]")
+        pops = None
     if floors is None or rises is None or pops is None or b["express_m"] is None or b["name"] is None:
         return None
     if isinstance(rises, float):
         rises = [rises] * floors
-    elif len(rises) != floors:
-        out.bad("building.floor_heights_m", raw["floor_heights_m"],
-                f"a list of length floors = {floors} (it has {len(rises)})")
-        return None
     if isinstance(pops, float):
         pops = [pops] * floors
-    elif len(pops) != floors:
-        out.bad("building.population", raw["population"],
-                f"a number, or a list of length floors = {floors} (it has {len(pops)})")
-        return None
-    if sum(pops) <= 0:
-        out.bad("building.population", raw["population"],
-                "populations >= 0 with a positive total [persons]")
-        return None
     return Building(name=b["name"], floor_rises_m=tuple(rises), populations=tuple(pops),
                     express_m=b["express_m"])
 

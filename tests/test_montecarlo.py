@@ -82,6 +82,23 @@ def test_kernel_equals_plain_reference_exactly(bg, mix, seed, mean):
                                           offsets[t + 1] - offsets[t]]
 
 
+def test_fused_sampling_kernel_equals_sampling_then_timing():
+    """simulate_trips samples inside the kernel; it must give the numbers of the
+    two-step path (sample the batch, then time it) on the same random stream."""
+    b = Building("H", (3.5, 4.0, 3.5, 5.0, 3.0), (10.0, 50.0, 0.0, 40.0, 25.0), 7.0)
+    t = Traffic(10.0, 0.5, 0.3, 0.2)
+    g = replace(SLOW_GROUP, rated_load_persons=6)
+    sampler = PassengerSampler(b, t)
+    flight = flight_table_s(b, g)
+    u, offsets = sampler.uniforms(np.random.default_rng(12), 7.5, 5_000, True)
+    fused = sampler.sampled_trips(g, flight, u, offsets)
+    orig, dest, offsets2 = sampler.draw(np.random.default_rng(12), 7.5, 5_000, True)
+    two_step = time_trips(b, g, orig, dest, offsets2, flight)
+    assert np.array_equal(offsets, offsets2)
+    assert np.array_equal(fused.rtt_s, two_step.rtt_s)
+    assert np.array_equal(fused.counts, two_step.counts)
+
+
 def test_sampler_draws_from_the_od_matrix():
     """Alias sampling reproduces the OD matrix (chi-square goodness of fit, scipy)."""
     from scipy.stats import chisquare

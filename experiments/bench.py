@@ -1,0 +1,166 @@
+"""Benchmark of the Monte Carlo kernels: `python -m experiments.bench`.
+
+Everything is measured in one run on this machine and reported as ratios, so the
+figures travel between machines better than seconds do:
+
+(i)   numpy ``Generator(PCG64).random`` uniforms per second;
+(ii)  the kernel's trips per second (passenger sampling from given uniforms plus
+      the trip model) on one thread and on all threads, for the reference up-peak
+      case: 16 floors of 3.6 m, 2.5 m/s, P = 12 fixed;
+(iii) the kernel's fraction of the random-number bound, trips/s / (uniforms/s / P);
+(iv)  its speed-up over a plain vectorised numpy Monte Carlo of the same trip model
+      (kept here as the baseline);
+(v)   the first-call compile time (fresh cache, in a child process), the time of a
+      second process with the cache warm, and a converged demand-mode estimate
+      (0.5 % interval) with a warm cache;
+(vi)  with the allocation rules: trips per second per rule for a 4-car batch of the
+      reference case, and its fraction of the random-number bound.
+"""
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import tempfile
+import time
+
+import numpy as np
+
+REFERENCE_FLOORS = 16
+REFERENCE_RISE_M = 3.6
+REFERENCE_SPEED_MPS = 2.5
+REFERENCE_P = 12
+
+
+def reference_case():
+    from roundtrip.building import Building, LiftGroup, Traffic
+    b = Building("bench", (REFERENCE_RISE_M,) * REFERENCE_FLOORS, (100.0,) * REFERENCE_FLOORS)
+    g = LiftGroup(cars=4, rated_load_persons=16, rated_speed_mps=REFERENCE_SPEED_MPS,
+                  acceleration_mps2=1.0, jerk_mps3=1.5, door_open_s=1.8, door_close_s=2.9,
+                  start_delay_s=0.5, transfer_in_s=1.2, transfer_out_s=1.2)
+    return b, g, Traffic(12.0)
+
+
+def best_of(fn, repeats: int = 5) -> float:
+    times = []
+    for _ in range(repeats):
+        t = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t)
+    return min(times)
+
+
+def uniforms_per_s(n: int) -> float:
+    rng = np.random.Generator(np.random.PCG64(1))
+    out = np.empty(n)
+    rng.random(out=out)
+    return n / best_of(lambda: rng.random(out=out))
+
+
+def numpy_baseline_trips(u, P, shares, flight_s, group):
+    """Plain vectorised numpy Monte Carlo of the up-peak trip model (no capacity limit
+    reached: P below rated load). The baseline the kernel is compared with."""
+    n = u.size // P
+    cum = np.cumsum(shares)
+    dest = np.minimum(np.searchsorted(cum, u.reshape(n, P), side="right"), shares.size - 1) + 1
+    mask = np.zeros((n, shares.size + 1), dtype=bool)
+    mask[np.arange(n)[:, None], dest] = True
+    rows, cols = np.nonzero(mask)
+    first = np.r_[True, rows[1:] != rows[:-1]]
+    prev = np.where(first, 0, np.r_[0, cols[:-1]])
+    flights = np.bincount(rows, weights=flight_s[prev, cols], minlength=n)
+    last = np.r_[rows[1:] != rows[:-1], True]
+    flights += np.bincount(rows[last], weights=flight_s[cols[last], 0], minlength=n)
+    stops = np.bincount(rows, minlength=n)
+    return flights + (stops + 1) * group.stop_overhead_s + P * (group.transfer_in_s + group.transfer_out_s)
+
+
+def kernel_trips(sampler, flight, group, u, offsets):
+    """The kernel as simulate_trips runs it: passengers sampled from given uniforms, then timed."""
+    out = {}
+
+    def run():
+        out["sample"] = sampler.sampled_trips(group, flight, u, offsets)
+    return run, out
+
+
+def _child_time(code: str, cache_dir: str) -> float:
+    env = dict(os.environ, NUMBA_CACHE_DIR=cache_dir)
+    t = time.perf_counter()
+    subprocess.run([sys.executable, "-c", code], check=True, env=env)
+    return time.perf_counter() - t
+
+
+CHILD = ("from experiments.bench import reference_case\n"
+         "from roundtrip.montecarlo import simulate_trips\n"
+         "b, g, _ = reference_case()\n"
+         "simulate_trips(b, g, 12, poisson=False, trials=1000, seed=1)\n")
+
+
+def main(argv=None) -> dict:
+    ap = argparse.ArgumentParser(prog="python -m experiments.bench", description=__doc__.split("\n")[0])
+    ap.add_argument("--trials", type=int, default=400_000, help="trips per timing (default 400,000)")
+    ap.add_argument("--no-compile", action="store_true", help="skip the compile-time child processes")
+    args = ap.parse_args(argv)
+
+    import numba
+
+    from roundtrip.montecarlo import PassengerSampler, flight_table_s, simulate_demand
+
+    b, g, traffic = reference_case()
+    P, n = REFERENCE_P, args.trials
+    figures: dict[str, float] = {}
+    if not args.no_compile:
+        with tempfile.TemporaryDirectory() as cache:
+            figures["first_call_process_s"] = _child_time(CHILD, cache)
+            figures["warm_cache_process_s"] = _child_time(CHILD, cache)
+
+    ups = uniforms_per_s(n * P)
+    figures["uniforms_per_s"] = ups
+    bound = ups / P
+    sampler = PassengerSampler(b)
+    flight = flight_table_s(b, g)
+    rng = np.random.default_rng(3)
+    u = rng.random(n * P)
+    offsets = np.arange(0, n * P + 1, P, dtype=np.int64)
+    threads = numba.config.NUMBA_NUM_THREADS
+    for label, t in (("1_thread", 1), (f"{threads}_threads", threads)):
+        numba.set_num_threads(t)
+        run, _ = kernel_trips(sampler, flight, g, u, offsets)
+        run()
+        figures[f"kernel_trips_per_s_{label}"] = n / best_of(run)
+    numba.set_num_threads(threads)
+    base = numpy_baseline_trips(u, P, b.population_shares, flight, g)
+    run1, out1 = kernel_trips(sampler, flight, g, u, offsets)
+    run1()
+    rtt1 = out1["sample"].rtt_s
+    # the kernel samples by the alias method, the baseline by inversion: compare their means
+    figures["baseline_mean_rtt_s"] = float(base.mean())
+    figures["kernel_mean_rtt_s"] = float(rtt1.mean())
+    figures["numpy_baseline_trips_per_s"] = n / best_of(
+        lambda: numpy_baseline_trips(u, P, b.population_shares, flight, g), 3)
+    figures["fraction_of_rng_bound_1_thread"] = figures["kernel_trips_per_s_1_thread"] / bound
+    figures["speedup_over_numpy_1_thread"] = (figures["kernel_trips_per_s_1_thread"]
+                                              / figures["numpy_baseline_trips_per_s"])
+    simulate_demand(b, g, traffic, seed=1)
+    figures["demand_estimate_warm_s"] = best_of(lambda: simulate_demand(b, g, traffic, seed=1), 3)
+
+    try:
+        from experiments.bench_rules import rule_figures
+    except ImportError:
+        rule_figures = None
+    if rule_figures is not None:
+        figures.update(rule_figures(b, g, P, n // 4, bound))
+
+    width = max(len(k) for k in figures)
+    print(f"reference case: {REFERENCE_FLOORS} floors x {REFERENCE_RISE_M} m, "
+          f"{REFERENCE_SPEED_MPS} m/s, P = {P} fixed; {n:,} trips per timing; "
+          f"{threads} threads available")
+    for k, v in figures.items():
+        print(f"{k:<{width}}  {v:,.4g}")
+    return figures
+
+
+if __name__ == "__main__":
+    main()

@@ -85,7 +85,11 @@ def build_parser() -> argparse.ArgumentParser:
         description="Lift-traffic planning estimates: the classical up-peak calculation, "
                     "Monte Carlo round trips, and conventional against destination-grouped "
                     "allocation. Results are planning estimates; final design must be "
-                    "checked by a qualified lift engineer.")
+                    "checked by a qualified lift engineer.",
+        epilog="Units: SI throughout - lengths in m, times in s, speeds in m/s, "
+               "accelerations in m/s^2, jerks in m/s^3, loads in persons; demand and "
+               "handling capacity in % of the building population per 5 minutes. "
+               "`liftsort COMMAND --help` gives every option with its unit.")
     parser.add_argument("--version", action="version", version=f"liftsort {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
 
@@ -103,7 +107,7 @@ def build_parser() -> argparse.ArgumentParser:
     calc.set_defaults(handler="experiments.calc_command")
 
     sim = sub.add_parser(
-        "simulate", help="Monte Carlo round trips of one car, with 95 % confidence intervals",
+        "simulate", help="Monte Carlo round trips of one car, with 95 %% confidence intervals",
         description="Monte Carlo simulation of single round trips on the real floor levels with "
                     "ideal jerk-limited flights, any traffic mix, and rated-load limits. With "
                     "--passengers, at that mean load; otherwise at the load the demand sets "

@@ -77,7 +77,8 @@ def numpy_baseline_trips(u, P, shares, flight_s, group):
 
 
 def kernel_trips(sampler, flight, group, u, offsets):
-    """The kernel as simulate_trips runs it: passengers sampled from given uniforms, then timed."""
+    """The kernel as simulate_trips runs it: passengers sampled from given uniforms and timed
+    (for this up-peak case, the up-peak kernel)."""
     out = {}
 
     def run():

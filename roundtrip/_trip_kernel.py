@@ -47,7 +47,8 @@ def _sample_cells(uniforms, alias_prob, alias_cell, cell_origin, cell_dest, orig
         k = int(x)
         if k >= K:
             k = K - 1
-        cell = k if (x - k) < alias_prob[k] else alias_cell[k]
+        a = alias_cell[k]
+        cell = a + (k - a) * ((x - k) < alias_prob[k])      # branch-free choice
         origin_out[i] = cell_origin[cell]
         dest_out[i] = cell_dest[cell]
 
@@ -140,6 +141,42 @@ def _lowest_bit(m):
 
 
 @njit(cache=True)
+def _route(up_mask, dn_mask, flight_s):
+    """Fly the route: up stops ascending, down stops descending, back to the lobby.
+
+    Returns (flight time [s], stops above the lobby, highest floor, lowest floor
+    served or -1 when none).
+    """
+    n_levels = flight_s.shape[0]
+    one = np.uint64(1)
+    flight = 0.0
+    pos = 0
+    stops = 0
+    m = up_mask & ~one                                # up journey, ascending
+    lowest = _lowest_bit(m) if m else -1
+    while m:
+        f = _lowest_bit(m)
+        m &= m - one
+        flight += flight_s[pos, f]
+        pos = f
+        stops += 1
+    highest = pos
+    if dn_mask & ~one:
+        for f in range(n_levels - 1, 0, -1):          # down journey, descending
+            if (dn_mask >> np.uint64(f)) & one:
+                if f != pos:
+                    flight += flight_s[pos, f]
+                    pos = f
+                    stops += 1
+                if f > highest:
+                    highest = f
+                if lowest < 0 or f < lowest:
+                    lowest = f
+    flight += flight_s[pos, 0]                        # return to the lobby
+    return flight, stops, highest, lowest
+
+
+@njit(cache=True)
 def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
              transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row):
     """Time one car's round trip with its ``n`` passengers (first n of orig, dest).
@@ -147,7 +184,6 @@ def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
     Writes the trip's integer figures into ``counts_out[row]`` (see the column
     constants) and returns the round-trip time [s].
     """
-    n_levels = flight_s.shape[0]
     one = np.uint64(1)
     all_from_lobby = True
     for i in range(n):
@@ -176,32 +212,7 @@ def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
         peak = max(peak_up, peak_dn)
         left = left_up + left_dn
         lobby = lobby_up or lobby_dn
-    flight = 0.0
-    pos = 0
-    stops = 0
-    lowest = -1
-    m = up_mask & ~one                                # up journey, ascending
-    while m:
-        f = _lowest_bit(m)
-        m &= m - one
-        flight += flight_s[pos, f]
-        pos = f
-        stops += 1
-        if lowest < 0:
-            lowest = f
-    highest = pos
-    if dn_mask & ~one:
-        for f in range(n_levels - 1, 0, -1):          # down journey, descending
-            if (dn_mask >> np.uint64(f)) & one:
-                if f != pos:
-                    flight += flight_s[pos, f]
-                    pos = f
-                    stops += 1
-                if f > highest:
-                    highest = f
-                if lowest < 0 or f < lowest:
-                    lowest = f
-    flight += flight_s[pos, 0]                        # return to the lobby
+    flight, stops, highest, lowest = _route(up_mask, dn_mask, flight_s)
     if lobby or lowest < 0:
         lowest = 0
     total_stops = stops + 1                           # the lobby, once per trip
@@ -298,3 +309,49 @@ def sampled_car_trips(uniforms, offsets, alias_prob, alias_cell, cell_origin, ce
         _sampled_car_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
                            cell_dest, flight_s, capacity, stop_overhead_s, transfer_in_s,
                            transfer_out_s, rtt_out, counts_out)
+
+
+@njit(cache=True)
+def _uppeak_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_dest, flight_s,
+                  capacity, stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out, counts_out):
+    """Up-peak trips (every origin the lobby): sample each boarding passenger's
+    destination straight into the stop mask. The same numbers as
+    :func:`_sampled_car_block` when the OD matrix has only lobby origins."""
+    K = alias_prob.shape[0]
+    one = np.uint64(1)
+    for t in range(first, last):
+        s = offsets[t]
+        n = offsets[t + 1] - s
+        boarded = min(n, capacity)
+        mask = np.uint64(0)
+        for i in range(s, s + boarded):
+            x = uniforms[i] * K
+            k = int(x)
+            if k >= K:
+                k = K - 1
+            a = alias_cell[k]
+            cell = a + (k - a) * ((x - k) < alias_prob[k])
+            mask |= one << np.uint64(cell_dest[cell])
+        flight, stops, highest, lowest = _route(mask, np.uint64(0), flight_s)
+        rtt_out[t] = (flight + (stops + 1) * stop_overhead_s + boarded * transfer_in_s
+                      + boarded * transfer_out_s)
+        counts_out[t, STOPS] = stops
+        counts_out[t, HIGHEST] = highest
+        counts_out[t, LOWEST] = 0
+        counts_out[t, BOARDED] = boarded
+        counts_out[t, PEAK_LOAD] = boarded
+        counts_out[t, LEFT_BEHIND] = n - boarded
+        counts_out[t, OFFERED] = n
+
+
+@njit(cache=True, parallel=True)
+def uppeak_car_trips(uniforms, offsets, alias_prob, alias_cell, cell_dest, flight_s, capacity,
+                     stop_overhead_s, transfer_in_s, transfer_out_s, n_blocks, rtt_out, counts_out):
+    """Parallel :func:`_uppeak_block` over ``n_blocks`` blocks of trials."""
+    n_trials = offsets.shape[0] - 1
+    for b in prange(n_blocks):
+        first = b * n_trials // n_blocks
+        last = (b + 1) * n_trials // n_blocks
+        _uppeak_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_dest,
+                      flight_s, capacity, stop_overhead_s, transfer_in_s, transfer_out_s,
+                      rtt_out, counts_out)

@@ -84,6 +84,8 @@ class PassengerSampler:
         cells = np.arange(self.od.size, dtype=np.int64)
         self.cell_origin = cells // self.n_levels
         self.cell_dest = cells % self.n_levels
+        #: every trip starts at the lobby: the up-peak kernel applies
+        self.lobby_origins_only = bool(np.all(self.od[1:, :] == 0))
 
     def uniforms(self, rng: np.random.Generator, mean_passengers: float, n_trials: int,
                  poisson: bool):
@@ -113,6 +115,11 @@ class PassengerSampler:
         n = offsets.size - 1
         rtt = np.empty(n)
         counts = np.empty((n, K.N_COUNTS), dtype=np.int64)
+        if self.lobby_origins_only:
+            K.uppeak_car_trips(u, offsets, self.alias_prob, self.alias_cell, self.cell_dest,
+                               flight_s, group.rated_load_persons, group.stop_overhead_s,
+                               group.transfer_in_s, group.transfer_out_s, _blocks(n), rtt, counts)
+            return TripSample(rtt, counts)
         K.sampled_car_trips(u, offsets, self.alias_prob, self.alias_cell, self.cell_origin,
                             self.cell_dest, flight_s, group.rated_load_persons,
                             group.stop_overhead_s, group.transfer_in_s, group.transfer_out_s,

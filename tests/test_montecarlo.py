@@ -82,15 +82,18 @@ def test_kernel_equals_plain_reference_exactly(bg, mix, seed, mean):
                                           offsets[t + 1] - offsets[t]]
 
 
-def test_fused_sampling_kernel_equals_sampling_then_timing():
-    """simulate_trips samples inside the kernel; it must give the numbers of the
-    two-step path (sample the batch, then time it) on the same random stream."""
+@pytest.mark.parametrize("mix", [(0.5, 0.3, 0.2), (1.0, 0.0, 0.0)], ids=["mixed", "up-peak"])
+def test_fused_sampling_kernel_equals_sampling_then_timing(mix):
+    """simulate_trips samples inside the kernel (up-peak: straight into the stop mask);
+    it must give the numbers of the two-step path (sample the batch, then time it)
+    on the same random stream."""
     b = Building("H", (3.5, 4.0, 3.5, 5.0, 3.0), (10.0, 50.0, 0.0, 40.0, 25.0), 7.0)
-    t = Traffic(10.0, 0.5, 0.3, 0.2)
+    t = Traffic(10.0, *mix)
     g = replace(SLOW_GROUP, rated_load_persons=6)
     sampler = PassengerSampler(b, t)
     flight = flight_table_s(b, g)
     u, offsets = sampler.uniforms(np.random.default_rng(12), 7.5, 5_000, True)
+    assert sampler.lobby_origins_only == (mix[0] == 1.0)
     fused = sampler.sampled_trips(g, flight, u, offsets)
     orig, dest, offsets2 = sampler.draw(np.random.default_rng(12), 7.5, 5_000, True)
     two_step = time_trips(b, g, orig, dest, offsets2, flight)

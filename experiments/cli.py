@@ -124,6 +124,28 @@ def build_parser() -> argparse.ArgumentParser:
     _add_json(sim)
     sim.set_defaults(handler="experiments.simulate_command")
 
+    cmp_ = sub.add_parser(
+        "compare", help="compare allocation rules (conventional against destination grouping)",
+        description="Compare allocation rules on the very same passenger batches (common random "
+                    "numbers). A trial is one batch of cars x P passengers; gains are against "
+                    "`random` (conventional control) with paired 95 %% intervals.")
+    _add_file(cmp_)
+    cmp_.add_argument("--rules", metavar="LIST", default="random,sorted,sectors,fewest-stops",
+                      help="comma-separated allocation rules (default: random,sorted,sectors,"
+                           "fewest-stops; also: best, round-robin)")
+    cmp_.add_argument("--cars-open", metavar="K", type=_whole(1, "K must be a whole number of cars >= 1"),
+                      help="cars open to allocation at once, 1 ... cars (default: all cars)")
+    cmp_.add_argument("--passengers", metavar="P", type=passengers_type,
+                      help="mean passengers per car per round [persons] (default: the demand's "
+                           "Monte Carlo fixed point under conventional control)")
+    counts = cmp_.add_mutually_exclusive_group()
+    counts.add_argument("--fixed", action="store_true", help="fixed passenger counts")
+    counts.add_argument("--poisson", action="store_true",
+                        help="Poisson passenger counts (the default)")
+    _add_run_options(cmp_)
+    _add_json(cmp_)
+    cmp_.set_defaults(handler="experiments.compare_command")
+
     demo = sub.add_parser(
         "demo", help="run the main job on the built-in invented demo building",
         description="Run liftsort's main job on the built-in invented demo building "

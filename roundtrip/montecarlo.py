@@ -234,12 +234,14 @@ def _check_run_options(trials, ci_target_pct, max_trials, threads) -> None:
 
 def run_until(chunk, trials: int | None, ci_target_pct: float, max_trials: int,
               first_chunk: int = 4000):
-    """Call ``chunk(n) -> (rtt array, payload)`` until the RTT interval is tight enough.
+    """Call ``chunk(n) -> (rtt, payload)`` until the RTT interval is tight enough.
 
-    With ``trials`` set, one call of exactly that many. Otherwise chunks are
-    added until 1.96 s/sqrt(n) <= ci_target_pct/100 x mean or ``max_trials``.
-    The chunk sizes depend only on the results so far, so a run is
-    reproducible from its seed. Returns the list of payloads.
+    ``rtt`` holds one round-trip time per trial, or one column per estimate
+    (trials x columns), every column of which must meet the target. With
+    ``trials`` set, one call of exactly that many. Otherwise chunks are added
+    until 1.96 s/sqrt(n) <= ci_target_pct/100 x mean or ``max_trials``. The
+    chunk sizes depend only on the results so far, so a run is reproducible
+    from its seed. Returns the list of payloads.
     """
     if trials is not None:
         return [chunk(trials)[1]]
@@ -249,13 +251,15 @@ def run_until(chunk, trials: int | None, ci_target_pct: float, max_trials: int,
     while True:
         rtt, payload = chunk(want)
         payloads.append(payload)
-        rtts.append(rtt)
+        rtts.append(np.asarray(rtt, dtype=float).reshape(want, -1))
         n += want
-        est = Estimate.of(np.concatenate(rtts))
-        target = ci_target_pct / 100.0 * abs(est.mean)
-        if est.ci95 <= target or n >= max_trials:
+        x = np.concatenate(rtts)
+        mean = np.abs(x.mean(axis=0))
+        half = Z95 * x.std(axis=0, ddof=1) / math.sqrt(n)
+        target = ci_target_pct / 100.0 * mean
+        if np.all(half <= target) or n >= max_trials:
             return payloads
-        needed = math.ceil(n * (est.ci95 / max(target, 1e-300)) ** 2 * 1.1)
+        needed = math.ceil(n * float(np.max((half / np.maximum(target, 1e-300)) ** 2)) * 1.1)
         want = int(min(max(needed - n, 1000), max_trials - n))
 
 

@@ -1,0 +1,126 @@
+"""`sectors`: static floor bands, one per car, balanced on expected round-trip time.
+
+The served floors 1 ... N are cut once into k contiguous bands (k = cars open).
+A band's cost is its car's expected round-trip time when it serves the band's
+share of the batch, by the classical round-trip formula with Poisson passenger
+counts applied to the band on its real floor levels:
+
+    RTT_b = 2 E[level of the highest call] / v + (S_b + 1) t_s + 2 m_b t_p
+
+with m_b = k P W_b the band's expected passengers (W_b its population share, P
+passengers per car), S_b = sum_{f in b} (1 - exp(-m_b u_f)), u_f = U_f / U_b,
+and E[level] = sum_f (level_f - level_{f-1}) Pr(highest >= f) with
+Pr(highest >= f) = 1 - exp(-m_b (1 - F_{f-1})) (ISO 8100-32:2020 / CIBSE
+Guide D forms of S and H, Poisson version). The bands minimise the largest
+band cost, found exactly by dynamic programming over the cut points (a
+shortest-bottleneck path through the layered graph "j bands cover floors
+1..f"), so the slowest car is as fast as a static zoning can make it.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .ordering import destination_order
+from .registry import register
+
+
+def band_round_trip_s(levels_m, populations, lo: int, hi: int, passengers: float,
+                      rated_speed_mps: float, stop_time_s: float, transfer_s: float) -> float:
+    """Expected round-trip time [s] of a car serving floors lo..hi (see the module notes)."""
+    u = np.asarray(populations[lo - 1:hi], dtype=float)
+    total = u.sum()
+    if total <= 0 or passengers <= 0:
+        return 2.0 * levels_m[lo] / rated_speed_mps + stop_time_s if passengers > 0 else 0.0
+    share = u / total
+    stops = float(np.sum(-np.expm1(-passengers * share)))
+    below = np.concatenate(([0.0], np.cumsum(share)[:-1]))         # F_{f-1} within the band
+    reach = -np.expm1(-passengers * np.clip(1.0 - below, 0.0, 1.0))  # Pr(highest >= f)
+    rises = np.diff(np.asarray(levels_m, dtype=float))[lo - 1:hi]   # level_f - level_{f-1}
+    level = float(levels_m[lo - 1]) * reach[0] + float(np.sum(rises * reach))
+    return 2.0 * level / rated_speed_mps + (stops + 1.0) * stop_time_s + 2.0 * passengers * transfer_s
+
+
+def floor_bands(building, group, cars_open: int, passengers_per_car: float):
+    """The balanced bands: a list of (first floor, last floor), one per car (at most N)."""
+    from roundtrip.kinematics import flight_time_s
+
+    N = building.floors
+    k = min(cars_open, N)
+    levels = building.levels_m
+    pops = np.asarray(building.populations, dtype=float)
+    shares = pops / pops.sum()
+    d_f = building.average_interfloor_height_m
+    v = group.rated_speed_mps
+    t_s = flight_time_s(d_f, v, group.acceleration_mps2, group.jerk_mps3) - d_f / v + group.stop_overhead_s
+    batch = cars_open * max(passengers_per_car, 1e-9)
+
+    cost = np.full((N + 2, N + 2), math.inf)
+    for lo in range(1, N + 1):
+        for hi in range(lo, N + 1):
+            m = batch * shares[lo - 1:hi].sum()
+            cost[lo, hi] = band_round_trip_s(levels, pops, lo, hi, m, v, t_s, group.transfer_s)
+    # best[j, f]: least achievable largest cost when j bands cover floors 1..f
+    best = np.full((k + 1, N + 1), math.inf)
+    cut = np.zeros((k + 1, N + 1), dtype=int)
+    best[0, 0] = 0.0
+    for j in range(1, k + 1):
+        for f in range(j, N + 1):
+            for g in range(j - 1, f):
+                c = max(best[j - 1, g], cost[g + 1, f])
+                if c < best[j, f]:
+                    best[j, f], cut[j, f] = c, g
+    bands, f = [], N
+    for j in range(k, 0, -1):
+        g = cut[j, f]
+        bands.append((g + 1, f))
+        f = g
+    return bands[::-1]
+
+
+def prepare_sectors(building, group, cars_open, passengers_per_car):
+    """params[f] = car of floor f (floor 0, the lobby, goes with car 0)."""
+    params = np.zeros(building.floors + 1)
+    for car, (lo, hi) in enumerate(floor_bands(building, group, cars_open, passengers_per_car)):
+        params[lo:hi + 1] = car
+    return params
+
+
+@register(
+    "sectors",
+    summary="Static floor bands: the floors are split once into one band per car, sized so "
+            "that every car's expected round trip is about equally long. Each passenger takes "
+            "the car of the band their floor lies in.",
+    source="Zoning of a lift group into floor bands (sectoring), a long-standing "
+           "destination-control and up-peak technique (common practice); bands balanced by "
+           "dynamic programming on the ISO 8100-32:2020 round-trip formula.",
+    prepare=prepare_sectors)
+def allocate_sectors(origins, destinations, cars_open, car_limit, params, car_out):
+    """Each passenger's car is the band of their upper floor (destination going up,
+    origin going down). When a band's car has its limit (its equal share of the
+    batch), the passenger goes to the nearest band with room (the lower one on a tie). Passengers are taken in destination order, so the
+    result does not depend on the order they are listed in."""
+    n = origins.shape[0]
+    order = np.empty(n, np.int64)
+    destination_order(origins, destinations, order)
+    load = np.zeros(cars_open, np.int64)
+    for r in range(n):
+        i = order[r]
+        floor = destinations[i] if destinations[i] > origins[i] else origins[i]
+        home = int(params[floor]) if floor < params.shape[0] else cars_open - 1
+        if home >= cars_open:
+            home = cars_open - 1
+        car = -1
+        for step in range(cars_open):
+            lower = home - step
+            upper = home + step
+            if lower >= 0 and load[lower] < car_limit:
+                car = lower
+                break
+            if upper < cars_open and load[upper] < car_limit:
+                car = upper
+                break
+        car_out[i] = car
+        if car >= 0:
+            load[car] += 1

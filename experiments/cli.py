@@ -146,6 +146,32 @@ def build_parser() -> argparse.ArgumentParser:
     _add_json(cmp_)
     cmp_.set_defaults(handler="experiments.compare_command")
 
+    sw = sub.add_parser(
+        "sweep", help="every rule across a range of demand: one tidy CSV and charts",
+        description="Sweep the demand (and optionally cars and cars open to allocation) and "
+                    "compare the rules at every point on common passengers. Writes sweep.csv "
+                    "and the charts into --out.")
+    _add_file(sw)
+    sw.add_argument("--arrival", metavar="A:B:STEP", required=True,
+                    help="demand points [%% of population per 5 min], START:STOP:STEP (STOP "
+                         "included) or a comma list, e.g. 6:20:1")
+    sw.add_argument("--cars", metavar="LIST",
+                    help="numbers of cars, a comma list or START:STOP (default: the file's)")
+    sw.add_argument("--cars-open", metavar="LIST",
+                    help="cars open to allocation, a comma list (default: all cars); values "
+                         "above a group's cars are skipped for that group")
+    sw.add_argument("--rules", metavar="LIST", default="random,sorted,sectors,fewest-stops",
+                    help="comma-separated allocation rules (default: random,sorted,sectors,"
+                         "fewest-stops)")
+    sw.add_argument("--out", metavar="DIR", default="liftsort-out",
+                    help="output folder for sweep.csv and the charts (default: liftsort-out)")
+    sw.add_argument("--fixed", action="store_true", help="fixed passenger counts (default Poisson)")
+    sw.add_argument("--no-charts", action="store_true", help="write the CSV only")
+    sw.add_argument("--quiet", action="store_true", help="no progress bar")
+    _add_run_options(sw)
+    _add_json(sw)
+    sw.set_defaults(handler="experiments.sweep_command")
+
     demo = sub.add_parser(
         "demo", help="run the main job on the built-in invented demo building",
         description="Run liftsort's main job on the built-in invented demo building "

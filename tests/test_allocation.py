@@ -1,0 +1,316 @@
+"""Allocation rules: properties that must hold for every batch (hypothesis), exact
+expectations on tiny buildings, and facts of the trade about destination grouping."""
+from __future__ import annotations
+
+import itertools
+import json
+import math
+from collections import Counter
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from hypothesis import assume, given, settings
+from hypothesis import strategies as st
+
+from allocation.registry import RULES, car_limit, get_rule
+from allocation.sectors import band_round_trip_s, floor_bands
+from experiments.cli import main
+from roundtrip import _group_kernel as G
+from roundtrip import _trip_kernel as K
+from roundtrip.building import Building, LiftGroup, Traffic
+from roundtrip.group_montecarlo import compare_rules
+from roundtrip.kinematics import flight_time_s
+from roundtrip.montecarlo import flight_table_s
+
+from .reference_trip import reference_trip
+
+GROUP = LiftGroup(cars=4, rated_load_persons=8, rated_speed_mps=1.6, acceleration_mps2=1.0,
+                  jerk_mps3=1.5, door_open_s=1.8, door_close_s=2.9, start_delay_s=0.5,
+                  transfer_in_s=1.2, transfer_out_s=1.2, capacity_factor=0.8)
+PLAIN_RULES = [r for r in RULES if r != "best"]
+
+
+@st.composite
+def batches(draw, max_floors=10, max_passengers=30, lobby_only=False):
+    """A building and a batch of (origin, destination) pairs, origin != destination."""
+    n_floors = draw(st.integers(1, max_floors))
+    rises = tuple(draw(st.lists(st.floats(2.8, 5.0), min_size=n_floors, max_size=n_floors)))
+    building = Building("B", rises, (50.0,) * n_floors)
+    n = draw(st.integers(0, max_passengers))
+    pairs = []
+    for _ in range(n):
+        if lobby_only or n_floors == 1 or draw(st.booleans()):
+            pairs.append((0, draw(st.integers(1, n_floors))))
+        else:
+            o = draw(st.integers(0, n_floors))
+            d = draw(st.integers(0, n_floors).filter(lambda x, o=o: x != o))
+            pairs.append((o, d))
+    return building, pairs
+
+
+def allocate(rule_name, building, group, pairs, k):
+    rule = get_rule(rule_name)
+    o = np.array([p[0] for p in pairs], dtype=np.int64)
+    d = np.array([p[1] for p in pairs], dtype=np.int64)
+    limit = car_limit(len(pairs), k, group.rated_load_persons)
+    return rule.allocate(o, d, k, limit, rule.params(building, group, k, len(pairs) / k)), limit
+
+
+def car_groups(pairs, cars, k):
+    return [Counter(p for p, c in zip(pairs, cars) if c == j) for j in range(k)]
+
+
+# ---------------------------------------------------------------- properties of every rule
+@settings(max_examples=80)
+@given(bp=batches(), k=st.integers(1, 5), rule=st.sampled_from(PLAIN_RULES))
+def test_every_passenger_allocated_once_within_the_car_limit(bp, k, rule):
+    building, pairs = bp
+    group = replace(GROUP, cars=k)
+    assume(len(pairs) <= k * group.rated_load_persons)      # the engine gives rules batches that fit
+    cars, limit = allocate(rule, building, group, pairs, k)
+    assert cars.shape == (len(pairs),)
+    assert np.all((cars >= 0) & (cars < k))                  # each passenger exactly one car
+    assert np.all(np.bincount(cars, minlength=k) <= limit)   # no car above its limit
+    assert limit <= group.rated_load_persons
+
+
+@settings(max_examples=60)
+@given(bp=batches(), k=st.integers(1, 4), rule=st.sampled_from(PLAIN_RULES), seed=st.integers(0, 99))
+def test_group_kernel_times_each_car_as_the_trip_model_and_never_overloads(bp, k, rule, seed):
+    """Each car's time equals the plain trip model's time of its passengers (exactly);
+    the stop list ascends up, descends down and covers every origin and destination;
+    no car is above rated load; a passenger is not allocated only when every open car
+    is full."""
+    building, pairs = bp
+    L = k * 2
+    group = replace(GROUP, cars=L, rated_load_persons=3)
+    o = np.array([p[0] for p in pairs], dtype=np.int64).reshape(-1)
+    d = np.array([p[1] for p in pairs], dtype=np.int64).reshape(-1)
+    offsets = np.array([0, len(pairs)], dtype=np.int64)
+    r = get_rule(rule)
+    params = np.zeros((L + 1, 64))
+    row = r.params(building, group, k, max(len(pairs), 1) / L)
+    params[k, :row.size] = row
+    flight = flight_table_s(building, group)
+    rtt = np.empty((1, L))
+    counts = np.empty((1, L, K.N_COUNTS), np.int64)
+    unalloc = np.empty(1, np.int64)
+    G.group_trips(r.compiled, o, d, offsets, L, k, 3, params, flight, group.stop_overhead_s,
+                  group.transfer_in_s, group.transfer_out_s, 1, rtt, counts, unalloc)
+    # rebuild the allocation with the plain rule, sub-batch by sub-batch
+    n = len(pairs)
+    fl = flight.tolist()
+    left = 0
+    for c0 in range(0, L, k):
+        a, b = n * c0 // L, n * (c0 + k) // L
+        fits = min(b - a, k * 3)
+        left += b - a - fits
+        sub = pairs[a:a + fits]
+        cars = r.allocate(o[a:a + fits], d[a:a + fits], k, car_limit(fits, k, 3), params[k])
+        if b - a > fits:
+            assert np.all(counts[0, c0:c0 + k, K.BOARDED] == 3)   # all open cars full
+        for j in range(k):
+            mine = [p for p, c in zip(sub, cars) if c == j]
+            ref = reference_trip(mine, fl, 3, group.stop_overhead_s, group.transfer_in_s,
+                                 group.transfer_out_s)
+            assert rtt[0, c0 + j] == ref.time_s
+            assert counts[0, c0 + j, K.PEAK_LOAD] <= 3
+            route = ref.route[1:-1]
+            top = route.index(max(route)) if route else 0
+            assert route[:top + 1] == sorted(route[:top + 1])
+            assert route[top:] == sorted(route[top:], reverse=True)
+            served = set(route) | {0}
+            assert all(p[0] in served and p[1] in served for p in mine)
+    assert unalloc[0] == left                 # the latest arrivals beyond full cars
+
+
+@settings(max_examples=80)
+@given(bp=batches(), k=st.integers(1, 5), rule=st.sampled_from(["sorted", "sectors"]),
+       perm_seed=st.integers(0, 2**31))
+def test_grouping_rules_ignore_the_listing_order(bp, k, rule, perm_seed):
+    """`sorted` and `sectors` give the same groups of (origin, destination) whatever
+    order the batch is listed in."""
+    building, pairs = bp
+    group = replace(GROUP, cars=k)
+    assume(len(pairs) <= k * group.rated_load_persons)
+    perm = np.random.default_rng(perm_seed).permutation(len(pairs))
+    shuffled = [pairs[i] for i in perm]
+    a, _ = allocate(rule, building, group, pairs, k)
+    b, _ = allocate(rule, building, group, shuffled, k)
+    assert car_groups(pairs, a, k) == car_groups(shuffled, b, k)
+
+
+@settings(max_examples=60)
+@given(bp=batches(), rule=st.sampled_from(PLAIN_RULES))
+def test_with_one_car_open_every_rule_is_conventional(bp, rule):
+    building, pairs = bp
+    group = replace(GROUP, cars=1)
+    assume(len(pairs) <= group.rated_load_persons)
+    cars, _ = allocate(rule, building, group, pairs, 1)
+    base, _ = allocate("random", building, group, pairs, 1)
+    assert np.array_equal(cars, base)
+
+
+def mean_rtt(building, group, pairs, cars, k):
+    fl = flight_table_s(building, group).tolist()
+    return sum(reference_trip([p for p, c in zip(pairs, cars) if c == j], fl,
+                              group.rated_load_persons, group.stop_overhead_s,
+                              group.transfer_in_s, group.transfer_out_s).time_s
+               for j in range(k)) / k
+
+
+@settings(max_examples=40)
+@given(bp=batches(max_floors=8, max_passengers=7), k=st.integers(1, 3))
+def test_best_is_never_worse_than_any_rule(bp, k):
+    """`best` searches every allocation within the same car limits, so no rule beats it
+    on the same batch (exhaustive enumeration is the bound)."""
+    building, pairs = bp
+    group = replace(GROUP, cars=k)
+    best, _ = allocate("best", building, group, pairs, k)
+    bound = mean_rtt(building, group, pairs, best, k)
+    for rule in PLAIN_RULES:
+        cars, _ = allocate(rule, building, group, pairs, k)
+        assert bound <= mean_rtt(building, group, pairs, cars, k) + 1e-9
+
+
+def test_worked_example_rule_deals_in_turn():
+    """The contributor's worked example: passengers dealt to the cars in turn."""
+    b = Building("B", (3.5,) * 6, (10.0,) * 6)
+    cars, _ = allocate("round-robin", b, GROUP, [(0, 3), (0, 1), (0, 6), (0, 2), (0, 5)], 3)
+    assert cars.tolist() == [0, 1, 2, 0, 1]
+
+
+def test_sorted_groups_by_destination():
+    """Hand check: destinations 3,1,4,1,5,6,2,6 to 3 cars -> {1,1}, {2,3,4}, {5,6,6}."""
+    b = Building("B", (3.5,) * 6, (10.0,) * 6)
+    pairs = [(0, x) for x in (3, 1, 4, 1, 5, 6, 2, 6)]
+    cars, _ = allocate("sorted", b, GROUP, pairs, 3)
+    groups = [sorted(p[1] for p, c in zip(pairs, cars) if c == j) for j in range(3)]
+    assert groups == [[1, 1], [2, 3, 4], [5, 6, 6]]
+
+
+def test_sector_bands_are_the_exact_minimax_partition():
+    """The dynamic programme finds the contiguous banding whose slowest band is fastest:
+    checked against exact enumeration of every placement of the cuts."""
+    b = Building("B", (4.5,) + (3.6,) * 9, (30.0, 90.0, 90.0, 60.0, 120.0, 80.0, 80.0, 40.0, 100.0, 20.0))
+    k, P = 3, 10.0
+    levels, pops = b.levels_m, np.asarray(b.populations)
+    shares = pops / pops.sum()
+    v = GROUP.rated_speed_mps
+    d_f = b.average_interfloor_height_m
+    t_s = flight_time_s(d_f, v, 1.0, 1.5) - d_f / v + GROUP.stop_overhead_s
+
+    def worst(bands):
+        return max(band_round_trip_s(levels, pops, lo, hi, k * P * shares[lo - 1:hi].sum(), v,
+                                     t_s, GROUP.transfer_s) for lo, hi in bands)
+
+    best = min(worst([(a + 1, c) for a, c in zip((0,) + cuts, cuts + (10,))])
+               for cuts in itertools.combinations(range(1, 10), k - 1))
+    assert worst(floor_bands(b, GROUP, k, P)) == pytest.approx(best, rel=1e-12)
+
+
+# ---------------------------------------------------------------- exact expectation
+def test_sorted_with_all_cars_open_matches_exact_enumeration():
+    """Tiny building, 2 cars x 2 passengers fixed, up-peak: the Monte Carlo mean of the
+    sorted rule equals the exact expectation over every batch (3^4 destination tuples
+    with their probabilities), within 4 standard errors."""
+    b = Building("tiny", (4.0, 3.0, 3.5), (20.0, 50.0, 30.0))
+    g = replace(GROUP, cars=2, rated_load_persons=8)
+    w = b.population_shares
+    exact = dict(rtt=0.0, stops=0.0, high=0.0)
+    fl = flight_table_s(b, g).tolist()
+    for dests in itertools.product((1, 2, 3), repeat=4):
+        prob = math.prod(w[x - 1] for x in dests)
+        pairs = [(0, x) for x in dests]
+        cars, _ = allocate("sorted", b, g, pairs, 2)
+        trips = [reference_trip([p for p, c in zip(pairs, cars) if c == j], fl, 8,
+                                g.stop_overhead_s, g.transfer_in_s, g.transfer_out_s)
+                 for j in range(2)]
+        exact["rtt"] += prob * sum(t.time_s for t in trips) / 2
+        exact["stops"] += prob * sum(t.stops for t in trips) / 2
+        exact["high"] += prob * sum(t.highest for t in trips) / 2
+    c = compare_rules(b, g, ["sorted"], 2, poisson=False, trials=40_000, seed=17)
+    s = c.result("sorted").sample
+    for name, x in (("rtt", s.trial_rtt_s), ("stops", s.trial_mean(K.STOPS)),
+                    ("high", s.trial_mean(K.HIGHEST))):
+        se = x.std(ddof=1) / math.sqrt(x.size)
+        assert abs(x.mean() - exact[name]) < 4 * se, name
+
+
+# ---------------------------------------------------------------- facts of the trade
+OFFICE = Building("Tamsin Yard", (4.2,) + (3.6,) * 13, (80.0,) * 14)
+OFFICE_GROUP = replace(GROUP, cars=4, rated_load_persons=16, rated_speed_mps=2.5)
+
+
+@pytest.fixture(scope="module")
+def office_comparisons():
+    return {k: compare_rules(OFFICE, OFFICE_GROUP, ["sorted", "sectors", "fewest-stops",
+                                                    "round-robin"], 10.0, cars_open=k,
+                             trials=6000, seed=5).to_dict()
+            for k in (1, 2, 4)}
+
+
+def test_destination_grouping_lowers_stops_and_rtt_and_raises_capacity(office_comparisons):
+    """Common practice: in up-peak, grouping passengers by destination lowers the mean
+    number of stops and the round-trip time, and raises handling capacity, against
+    conventional (random) allocation at the same car load."""
+    rules = {r["rule"]: r for r in office_comparisons[4]["rules"]}
+    for name in ("sorted", "sectors", "fewest-stops"):
+        r = rules[name]
+        assert r["expected_stops"] < rules["random"]["expected_stops"]
+        assert r["rtt_gain_pct_vs_random"] - r["rtt_gain_ci95_pct"] > 0
+        assert r["hc_gain_pct_vs_random"] - r["hc_gain_ci95_pct"] > 0
+
+
+def test_grouping_gain_grows_with_cars_open(office_comparisons):
+    """Common practice: the more cars open to allocation, the more grouping can gain;
+    with one car open, destination grouping is conventional control."""
+    gain = {k: {r["rule"]: r["hc_gain_pct_vs_random"] for r in c["rules"]}
+            for k, c in office_comparisons.items()}
+    for name in ("sorted", "sectors"):
+        assert gain[1][name] == pytest.approx(0.0, abs=1e-9)
+        assert gain[1][name] < gain[2][name] < gain[4][name]
+
+
+def test_paired_intervals_are_much_narrower_than_unpaired(office_comparisons):
+    for r in office_comparisons[4]["rules"][1:]:
+        assert r["rtt_gain_ci95_pct"] < 0.7 * r["rtt_gain_ci95_pct_unpaired"]
+
+
+def test_worked_example_rule_performs_like_conventional(office_comparisons):
+    r = {x["rule"]: x for x in office_comparisons[4]["rules"]}["round-robin"]
+    assert abs(r["rtt_gain_pct_vs_random"]) < 4 * r["rtt_gain_ci95_pct"] / 1.96 + 1e-9
+
+
+def test_same_seed_same_comparison_on_one_and_two_threads():
+    a = compare_rules(OFFICE, OFFICE_GROUP, ["sorted"], 9.0, traffic=Traffic(10.0, 0.5, 0.3, 0.2),
+                      trials=3000, seed=4, threads=1)
+    b = compare_rules(OFFICE, OFFICE_GROUP, ["sorted"], 9.0, traffic=Traffic(10.0, 0.5, 0.3, 0.2),
+                      trials=3000, seed=4, threads=2)
+    for x, y in zip(a.results, b.results):
+        assert np.array_equal(x.sample.rtt_s, y.sample.rtt_s)
+        assert np.array_equal(x.sample.counts, y.sample.counts)
+
+
+# ---------------------------------------------------------------- command line
+def test_compare_json_has_the_contract_keys(tmp_path, capsys):
+    f = tmp_path / "b.toml"
+    f.write_text('[building]\nname = "Pell Row"\nfloors = 8\nfloor_height_m = 3.5\npopulation = 60\n'
+                 '[group]\ncars = 3\nrated_load_persons = 13\nrated_speed_mps = 1.6\n'
+                 'acceleration_mps2 = 1.0\njerk_mps3 = 1.5\ndoor_open_s = 1.8\ndoor_close_s = 2.9\n')
+    assert main(["compare", str(f), "--passengers", "8", "--trials", "2000", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    keys = {"rule", "round_trip_time_s", "ci95_s", "interval_s", "handling_capacity_persons_5min",
+            "handling_capacity_pct_5min", "expected_stops", "highest_reversal_floor",
+            "car_load_pct", "left_behind_share", "rtt_gain_pct_vs_random", "rtt_gain_ci95_pct"}
+    assert [r["rule"] for r in d["rules"]] == ["random", "sorted", "sectors", "fewest-stops"]
+    for r in d["rules"]:
+        assert keys <= set(r)
+        assert r["interval_s"] == pytest.approx(r["round_trip_time_s"] / 3)
+    assert main(["compare", str(f), "--passengers", "8", "--rules", "random,sortd"]) == 2
+    assert "did you mean 'sorted'" in capsys.readouterr().err
+    assert main(["compare", str(f), "--passengers", "3", "--rules", "best"]) == 2
+    assert "tiny batches" in capsys.readouterr().err
+    assert main(["compare", str(f), "--passengers", "8", "--cars-open", "4"]) == 2
+    assert "--cars-open" in capsys.readouterr().err

@@ -26,7 +26,7 @@ def prepare_best(building, group, cars_open, passengers_per_car):
     source="Exhaustive enumeration (a bound for tests and experiments); identical cars, so "
            "allocations that differ only by car numbering are tried once.",
     prepare=prepare_best, max_batch=MAX_BATCH)
-def allocate_best(origins, destinations, cars_open, car_limit, params, car_out):
+def allocate_best(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     n = origins.shape[0]
     levels = int(params[0])
     flight = params[4:4 + levels * levels].reshape((levels, levels))

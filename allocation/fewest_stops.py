@@ -1,8 +1,6 @@
 """`fewest-stops`: a capacity-aware greedy destination allocation."""
 from __future__ import annotations
 
-import numpy as np
-
 from .registry import register
 
 
@@ -14,7 +12,7 @@ from .registry import register
             "leave with similar loads.",
     source="Greedy stop-minimising hall-call allocation, the simplest destination-control "
            "heuristic (common practice).")
-def allocate_fewest_stops(origins, destinations, cars_open, car_limit, params, car_out):
+def allocate_fewest_stops(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     """New stops of a passenger in a car: their origin (the lobby is always a stop) and
     destination floors that the car does not yet serve in the passenger's direction.
     A car is open to a passenger while it has fewer than ``car_limit``.
@@ -25,11 +23,12 @@ def allocate_fewest_stops(origins, destinations, cars_open, car_limit, params, c
     in arrival order and the rule collapses into conventional control.
     """
     n = origins.shape[0]
-    up = np.zeros(cars_open, np.uint64)
-    down = np.zeros(cars_open, np.uint64)
-    top = np.zeros(cars_open, np.int64)
-    load = np.zeros(cars_open, np.int64)
-    one = np.uint64(1)
+    up = scratch[0:cars_open]                 # stop masks, bit f for floor f
+    down = scratch[cars_open:2 * cars_open]
+    top = scratch[2 * cars_open:3 * cars_open]
+    load = scratch[3 * cars_open:4 * cars_open]
+    scratch[:4 * cars_open] = 0
+    one = 1
     for i in range(n):
         o, d = origins[i], destinations[i]
         best, best_new, best_rise, best_load = -1, 3, 1 << 30, 1 << 30
@@ -38,9 +37,9 @@ def allocate_fewest_stops(origins, destinations, cars_open, car_limit, params, c
                 continue
             mask = up[c] if d > o else down[c]
             new = 0
-            if o != 0 and not (mask >> np.uint64(o)) & one:
+            if o != 0 and not (mask >> o) & one:
                 new += 1
-            if d != 0 and not (mask >> np.uint64(d)) & one:
+            if d != 0 and not (mask >> d) & one:
                 new += 1
             rise = max(0, max(o, d) - top[c])
             if (new < best_new or (new == best_new and load[c] < best_load)
@@ -48,7 +47,7 @@ def allocate_fewest_stops(origins, destinations, cars_open, car_limit, params, c
                 best, best_new, best_rise, best_load = c, new, rise, load[c]
         car_out[i] = best
         if best >= 0:
-            bits = (one << np.uint64(o)) | (one << np.uint64(d))
+            bits = (one << o) | (one << d)
             if d > o:
                 up[best] |= bits
             else:

@@ -1,8 +1,6 @@
 """`sorted`: destination grouping by sorting the batch on destination."""
 from __future__ import annotations
 
-import numpy as np
-
 from .ordering import destination_order, equal_cut
 from .registry import register
 
@@ -15,8 +13,8 @@ from .registry import register
     source="Destination-control principle of grouping passengers with the same or adjacent "
            "destinations into one car (common practice; CIBSE Guide D, 2015, section on "
            "destination control, from memory).")
-def allocate_sorted(origins, destinations, cars_open, car_limit, params, car_out):
+def allocate_sorted(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     n = origins.shape[0]
-    order = np.empty(n, np.int64)
-    destination_order(origins, destinations, order)
+    order = scratch[:n]
+    destination_order(origins, destinations, order, scratch[n:])
     equal_cut(order, n, cars_open, car_out)

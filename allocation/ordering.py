@@ -10,48 +10,66 @@ from numba import njit
 
 
 @njit(cache=True)
-def destination_order(origins, destinations, order_out):
+def destination_order(origins, destinations, order_out, work):
     """Passengers in destination order, stable in arrival order.
 
     Up passengers (origin below destination) first, by destination ascending and
     then origin ascending; then down passengers by origin descending and then
-    destination descending. Two passes of a stable counting sort (least
-    significant key first), O(n + floors).
+    destination descending. A stable counting sort, O(n + floors): one pass
+    when every passenger boards at the lobby, else two (least significant key
+    first). ``work`` is working space of at least n + 2 x floors + 3 entries.
     """
     n = origins.shape[0]
     if n == 0:
         return
     levels = 1
+    lobby_only = True
     for i in range(n):
         levels = max(levels, origins[i] + 1, destinations[i] + 1)
-    major = np.empty(n, np.int64)
-    minor = np.empty(n, np.int64)
-    for i in range(n):
-        o, d = origins[i], destinations[i]
-        if d > o:
-            major[i] = d
-            minor[i] = o
-        else:
-            major[i] = levels + (levels - 1 - o)
-            minor[i] = levels - 1 - d
-    tmp = np.empty(n, np.int64)
-    count = np.zeros(2 * levels + 1, np.int64)
+        if origins[i] != 0:
+            lobby_only = False
+    count = work[:2 * levels + 1]
+    count[:] = 0
+    if lobby_only:                        # up-peak: the destination is the whole key
+        for i in range(n):
+            count[destinations[i] + 1] += 1
+        for k in range(1, levels + 1):
+            count[k] += count[k - 1]
+        for i in range(n):
+            order_out[count[destinations[i]]] = i
+            count[destinations[i]] += 1
+        return
+    tmp = work[2 * levels + 1:2 * levels + 1 + n]
     for i in range(n):                    # pass 1: by the minor key
-        count[minor[i] + 1] += 1
+        count[_minor_key(origins[i], destinations[i], levels) + 1] += 1
     for k in range(1, 2 * levels + 1):
         count[k] += count[k - 1]
     for i in range(n):
-        tmp[count[minor[i]]] = i
-        count[minor[i]] += 1
+        key = _minor_key(origins[i], destinations[i], levels)
+        tmp[count[key]] = i
+        count[key] += 1
     count[:] = 0
     for i in range(n):                    # pass 2: by the major key, stable
-        count[major[i] + 1] += 1
+        count[_major_key(origins[i], destinations[i], levels) + 1] += 1
     for k in range(1, 2 * levels + 1):
         count[k] += count[k - 1]
     for r in range(n):
         i = tmp[r]
-        order_out[count[major[i]]] = i
-        count[major[i]] += 1
+        key = _major_key(origins[i], destinations[i], levels)
+        order_out[count[key]] = i
+        count[key] += 1
+
+
+@njit(cache=True, inline="always")
+def _major_key(o, d, levels):
+    """Up: the destination; down: after every up key, by origin descending."""
+    return d if d > o else levels + (levels - 1 - o)
+
+
+@njit(cache=True, inline="always")
+def _minor_key(o, d, levels):
+    """Up: the origin; down: the destination, descending."""
+    return o if d > o else levels - 1 - d
 
 
 @njit(cache=True)

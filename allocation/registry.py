@@ -2,7 +2,7 @@
 
 A rule is a plain function with the fixed signature::
 
-    rule(origins, destinations, cars_open, car_limit, params, car_out) -> None
+    rule(origins, destinations, cars_open, car_limit, params, scratch, car_out) -> None
 
 origins, destinations : int64 arrays, one entry per passenger of the batch, in
     arrival order (floor 0 is the lobby)
@@ -12,6 +12,9 @@ car_limit : int, the most passengers one car may take from this batch [persons]:
     when that is smaller, so that every rule compares at the same car load
 params : float64 array, the rule's own table made once per run by its
     ``prepare`` hook (zeros when the rule has none)
+scratch : int64 array, working space the rule may overwrite, at least
+    :func:`scratch_size` (n, cars_open) entries (so that a rule inside the kernel
+    need not allocate memory for every batch)
 car_out : int64 array, written by the rule: each passenger's car, or -1 when
     no car can take them
 
@@ -30,7 +33,8 @@ from typing import Callable
 
 import numpy as np
 
-RULE_SIGNATURE_TEXT = "void(int64[::1], int64[::1], int64, int64, float64[::1], int64[::1])"
+RULE_SIGNATURE_TEXT = ("void(int64[::1], int64[::1], int64, int64, float64[::1], int64[::1], "
+                       "int64[::1])")
 
 
 @dataclass(frozen=True)
@@ -76,7 +80,8 @@ class Rule:
         d = np.ascontiguousarray(destinations, dtype=np.int64)
         out = np.full(o.size, -1, dtype=np.int64)
         p = np.zeros(1) if params is None else np.ascontiguousarray(params, dtype=np.float64)
-        self.function(o, d, int(cars_open), int(car_limit), p, out)
+        scratch = np.zeros(scratch_size(o.size, int(cars_open)), dtype=np.int64)
+        self.function(o, d, int(cars_open), int(car_limit), p, scratch, out)
         return out
 
 
@@ -89,7 +94,7 @@ def _compile(function: Callable):
         return function
     from numba import cfunc, types
     sig = types.void(types.int64[::1], types.int64[::1], types.int64, types.int64,
-                     types.float64[::1], types.int64[::1])
+                     types.float64[::1], types.int64[::1], types.int64[::1])
     return cfunc(sig, cache=True)(function)
 
 
@@ -102,6 +107,11 @@ def register(name: str, *, summary: str, source: str, prepare: Callable | None =
         RULES[name] = Rule(name, summary, source, function, _compile(function), prepare, max_batch)
         return function
     return wrap
+
+
+def scratch_size(batch: int, cars_open: int) -> int:
+    """Entries of the working space a rule is given: 4 n + 4 cars + 2 x 64 + 2."""
+    return 4 * batch + 4 * cars_open + 130
 
 
 def car_limit(batch: int, cars_open: int, rated_load_persons: int) -> int:

@@ -14,6 +14,6 @@ from .registry import register
     summary="Worked example: passengers are dealt to the cars in turn, like cards, with no "
             "regard to destination. It should perform like conventional control.",
     source="Worked example for contributors; a conventional rule by construction.")
-def allocate_round_robin(origins, destinations, cars_open, car_limit, params, car_out):
+def allocate_round_robin(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     for i in range(origins.shape[0]):
         car_out[i] = i % cars_open

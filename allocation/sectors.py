@@ -96,15 +96,16 @@ def prepare_sectors(building, group, cars_open, passengers_per_car):
            "destination-control and up-peak technique (common practice); bands balanced by "
            "dynamic programming on the ISO 8100-32:2020 round-trip formula.",
     prepare=prepare_sectors)
-def allocate_sectors(origins, destinations, cars_open, car_limit, params, car_out):
+def allocate_sectors(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     """Each passenger's car is the band of their upper floor (destination going up,
     origin going down). When a band's car has its limit (its equal share of the
     batch), the passenger goes to the nearest band with room (the lower one on a tie). Passengers are taken in destination order, so the
     result does not depend on the order they are listed in."""
     n = origins.shape[0]
-    order = np.empty(n, np.int64)
-    destination_order(origins, destinations, order)
-    load = np.zeros(cars_open, np.int64)
+    order = scratch[:n]
+    load = scratch[n:n + cars_open]
+    load[:] = 0
+    destination_order(origins, destinations, order, scratch[n + cars_open:])
     for r in range(n):
         i = order[r]
         floor = destinations[i] if destinations[i] > origins[i] else origins[i]

@@ -86,6 +86,42 @@ def kernel_trips(sampler, flight, group, u, offsets):
     return run, out
 
 
+def rule_figures(building, group, P, n_batches, bound):
+    """Trips/s of each rule on one thread for batches of cars x P (the group kernel:
+    passenger sampling, allocation, timing of every car), and the fraction of the
+    random-number bound."""
+    from allocation.registry import RULES
+    from roundtrip import _group_kernel as G
+    from roundtrip import _trip_kernel as K
+    from roundtrip.group_montecarlo import _params_table
+    from roundtrip.montecarlo import PassengerSampler, flight_table_s
+
+    L = group.cars
+    sampler = PassengerSampler(building)
+    flight = flight_table_s(building, group)
+    u = np.random.default_rng(5).random(n_batches * L * P)
+    offsets = np.arange(0, u.size + 1, L * P, dtype=np.int64)
+    rtt = np.empty((n_batches, L))
+    counts = np.empty((n_batches, L, K.N_COUNTS), np.int64)
+    unalloc = np.empty(n_batches, np.int64)
+    out = {}
+    for name, rule in RULES.items():
+        if rule.max_batch is not None:
+            continue
+        table = _params_table(rule, building, group, L, P)
+
+        def run():
+            G.group_trips(rule.compiled, u, offsets, sampler.alias_prob, sampler.alias_cell,
+                          sampler.cell_origin, sampler.cell_dest, L, L, group.rated_load_persons,
+                          table, flight, group.stop_overhead_s, group.transfer_in_s,
+                          group.transfer_out_s, 1, rtt, counts, unalloc)
+        run()
+        trips_per_s = n_batches * L / best_of(run, 3)
+        out[f"rule_{name}_trips_per_s_1_thread"] = trips_per_s
+        out[f"rule_{name}_fraction_of_rng_bound"] = trips_per_s / bound
+    return out
+
+
 def _child_time(code: str, cache_dir: str) -> float:
     env = dict(os.environ, NUMBA_CACHE_DIR=cache_dir)
     t = time.perf_counter()
@@ -147,12 +183,9 @@ def main(argv=None) -> dict:
     simulate_demand(b, g, traffic, seed=1)
     figures["demand_estimate_warm_s"] = best_of(lambda: simulate_demand(b, g, traffic, seed=1), 3)
 
-    try:
-        from experiments.bench_rules import rule_figures
-    except ImportError:
-        rule_figures = None
-    if rule_figures is not None:
-        figures.update(rule_figures(b, g, P, n // 4, bound))
+    numba.set_num_threads(1)
+    figures.update(rule_figures(b, g, P, n // 4, bound))
+    numba.set_num_threads(threads)
 
     width = max(len(k) for k in figures)
     print(f"reference case: {REFERENCE_FLOORS} floors x {REFERENCE_RISE_M} m, "

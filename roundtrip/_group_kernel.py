@@ -8,6 +8,9 @@ Passengers beyond the sub-batch's cars x rated load are left behind (not
 allocated), the latest arrivals first. Each car's trip is then timed by the
 one-car trip model (:func:`roundtrip._trip_kernel.car_trip`).
 
+Each batch is drawn inside the kernel from its uniforms (one per passenger),
+so every rule sees the very same passengers (common random numbers).
+
 The rule arrives as a compiled function of the fixed rule signature (see
 :mod:`allocation.registry`), so one compiled kernel serves every rule.
 """
@@ -16,58 +19,76 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-from ._trip_kernel import car_trip
+from ._trip_kernel import _sample_cells, car_trip
 
 
 @njit(cache=True)
-def _group_block(rule, orig, dest, offsets, first, last, n_cars, cars_open, rated_load, params,
-                 flight_s, stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out, counts_out,
-                 unallocated_out):
+def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
+                 cell_dest, n_cars, cars_open, rated_load, params, flight_s, stop_overhead_s,
+                 transfer_in_s, transfer_out_s, rtt_out, counts_out, unallocated_out):
     n_levels = flight_s.shape[0]
     longest = 1
     for t in range(first, last):
         longest = max(longest, offsets[t + 1] - offsets[t])
+    orig = np.empty(longest, np.int64)
+    dest = np.empty(longest, np.int64)
     car_of = np.empty(longest, np.int64)
     o_car = np.empty(longest, np.int64)
     d_car = np.empty(longest, np.int64)
+    start = np.empty(cars_open + 1, np.int64)
+    scratch = np.empty(4 * longest + 4 * cars_open + 130, np.int64)
     order = np.empty(longest, np.int64)
     alight = np.empty(n_levels, np.int64)
     mask = np.empty(1, np.uint64)
     for t in range(first, last):
         s = offsets[t]
         n = offsets[t + 1] - s
+        _sample_cells(uniforms[s:s + n], alias_prob, alias_cell, cell_origin, cell_dest, orig, dest)
         unallocated = 0
         for c0 in range(0, n_cars, cars_open):
             c1 = min(n_cars, c0 + cars_open)
             k = c1 - c0
-            a = s + n * c0 // n_cars
-            m = s + n * c1 // n_cars - a
+            a = n * c0 // n_cars
+            m = n * c1 // n_cars - a
             fits = min(m, k * rated_load)
             unallocated += m - fits
             limit = min(rated_load, (fits + k - 1) // k)
             car_of[:fits] = -1
-            rule(orig[a:a + fits], dest[a:a + fits], k, limit, params[k], car_of[:fits])
-            for c in range(k):
-                p = 0
-                for i in range(fits):
-                    if car_of[i] == c:
-                        o_car[p] = orig[a + i]
-                        d_car[p] = dest[a + i]
-                        p += 1
-                rtt_out[t, c0 + c] = car_trip(o_car, d_car, p, flight_s, rated_load,
-                                              stop_overhead_s, transfer_in_s, transfer_out_s,
-                                              order, alight, mask, counts_out[t], c0 + c)
+            rule(orig[a:a + fits], dest[a:a + fits], k, limit, params[k], scratch, car_of[:fits])
+            # each car's passengers, in arrival order (a stable counting sort by car)
+            start[:] = 0
             for i in range(fits):
-                if car_of[i] < 0 or car_of[i] >= k:
+                c = car_of[i]
+                if 0 <= c < k:
+                    start[c + 1] += 1
+                else:
                     unallocated += 1
+            for c in range(k):
+                start[c + 1] += start[c]
+            for i in range(fits):
+                c = car_of[i]
+                if 0 <= c < k:
+                    o_car[start[c]] = orig[a + i]
+                    d_car[start[c]] = dest[a + i]
+                    start[c] += 1
+            lo = 0
+            for c in range(k):
+                hi = start[c]
+                rtt_out[t, c0 + c] = car_trip(o_car[lo:hi], d_car[lo:hi], hi - lo, flight_s,
+                                              rated_load, stop_overhead_s, transfer_in_s,
+                                              transfer_out_s, order, alight, mask, counts_out[t],
+                                              c0 + c)
+                lo = hi
         unallocated_out[t] = unallocated
 
 
 @njit(cache=True, parallel=True)
-def group_trips(rule, orig, dest, offsets, n_cars, cars_open, rated_load, params, flight_s,
-                stop_overhead_s, transfer_in_s, transfer_out_s, n_blocks, rtt_out, counts_out,
-                unallocated_out):
-    """Every trial is one batch allocated by ``rule``; blocks of trials run in parallel.
+def group_trips(rule, uniforms, offsets, alias_prob, alias_cell, cell_origin, cell_dest, n_cars,
+                cars_open, rated_load, params, flight_s, stop_overhead_s, transfer_in_s,
+                transfer_out_s, n_blocks, rtt_out, counts_out, unallocated_out):
+    """Every trial is one batch, drawn from uniforms[offsets[t]:offsets[t+1]] by the alias
+    table (as :func:`roundtrip._trip_kernel.sample_cells`) and allocated by ``rule``;
+    blocks of trials run in parallel.
 
     Outputs: rtt_out[t, car] [s], counts_out[t, car, :] (trip counts as in
     _trip_kernel), unallocated_out[t] (passengers no car took). ``params[k]`` is
@@ -77,6 +98,7 @@ def group_trips(rule, orig, dest, offsets, n_cars, cars_open, rated_load, params
     for b in prange(n_blocks):
         first = b * n_trials // n_blocks
         last = (b + 1) * n_trials // n_blocks
-        _group_block(rule, orig, dest, offsets, first, last, n_cars, cars_open, rated_load,
-                     params, flight_s, stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out,
-                     counts_out, unallocated_out)
+        _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
+                     cell_dest, n_cars, cars_open, rated_load, params, flight_s,
+                     stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out, counts_out,
+                     unallocated_out)

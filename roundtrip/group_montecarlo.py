@@ -204,14 +204,15 @@ def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_ca
     L = group.cars
 
     def chunk(n):
-        orig, dest, offsets = sampler.draw(rng, batch_mean, n, poisson)
+        u, offsets = sampler.uniforms(rng, batch_mean, n, poisson)
         out = []
         for rule, table in zip(chosen, tables):
             rtt = np.empty((n, L))
             counts = np.empty((n, L, K.N_COUNTS), dtype=np.int64)
             unalloc = np.empty(n, dtype=np.int64)
             blocks = max(1, min(n // 500 + 1, 64))
-            G.group_trips(rule.compiled, orig, dest, offsets, L, k, group.rated_load_persons,
+            G.group_trips(rule.compiled, u, offsets, sampler.alias_prob, sampler.alias_cell,
+                          sampler.cell_origin, sampler.cell_dest, L, k, group.rated_load_persons,
                           table, flight, group.stop_overhead_s, group.transfer_in_s,
                           group.transfer_out_s, blocks, rtt, counts, unalloc)
             out.append(GroupSample(rtt, counts, unalloc))

@@ -96,7 +96,13 @@ def test_group_kernel_times_each_car_as_the_trip_model_and_never_overloads(bp, k
     rtt = np.empty((1, L))
     counts = np.empty((1, L, K.N_COUNTS), np.int64)
     unalloc = np.empty(1, np.int64)
-    G.group_trips(r.compiled, o, d, offsets, L, k, 3, params, flight, group.stop_overhead_s,
+    # an alias table whose cell i is passenger i, and uniforms that pick cell i in turn,
+    # make the kernel draw exactly this batch
+    n_cells = max(len(pairs), 1)
+    u = (np.arange(len(pairs)) + 0.5) / n_cells
+    G.group_trips(r.compiled, u, offsets, np.ones(n_cells), np.arange(n_cells),
+                  np.concatenate((o, [0]))[:n_cells], np.concatenate((d, [1]))[:n_cells],
+                  L, k, 3, params, flight, group.stop_overhead_s,
                   group.transfer_in_s, group.transfer_out_s, 1, rtt, counts, unalloc)
     # rebuild the allocation with the plain rule, sub-batch by sub-batch
     n = len(pairs)

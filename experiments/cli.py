@@ -172,6 +172,34 @@ def build_parser() -> argparse.ArgumentParser:
     _add_json(sw)
     sw.set_defaults(handler="experiments.sweep_command")
 
+    sz = sub.add_parser(
+        "size", help="smallest group meeting interval and handling-capacity criteria, per rule",
+        description="Search lift groups, fewest cars first, then smallest car, then slowest "
+                    "speed, for the smallest one whose interval and 5-minute handling capacity "
+                    "at design load meet the criteria under each rule, and say what "
+                    "destination control saves. Default criteria: interval <= 30 s and "
+                    "handling capacity >= the file's demand (or 12 %%), common office practice "
+                    "(CIBSE Guide D).")
+    _add_file(sz)
+    sz.add_argument("--interval-max", metavar="S", type=_number(0.0, True, "S must be > 0 [s]"),
+                    help="largest acceptable interval at design load [s] (default 30)")
+    sz.add_argument("--hc-min", metavar="PCT", type=_number(0.0, True, "PCT must be > 0 [%%]"),
+                    help="least 5-minute handling capacity [%% of population] (default: the "
+                         "file's demand, else 12)")
+    sz.add_argument("--cars", metavar="A:B", default="1:10",
+                    help="numbers of cars to try, START:STOP or a comma list (default 1:10)")
+    sz.add_argument("--loads", metavar="LIST",
+                    help="rated loads to try [persons], e.g. 13,16,21 (default: the file's)")
+    sz.add_argument("--speeds", metavar="LIST",
+                    help="rated speeds to try [m/s], e.g. 1.6,2.5,3.5 (default: the file's)")
+    sz.add_argument("--rules", metavar="LIST",
+                    help="allocation rules (default: random,sorted,sectors,fewest-stops)")
+    sz.add_argument("--fixed", action="store_true", help="fixed passenger counts (default Poisson)")
+    sz.add_argument("--quiet", action="store_true", help="no progress bar")
+    _add_run_options(sz)
+    _add_json(sz)
+    sz.set_defaults(handler="experiments.size_command")
+
     demo = sub.add_parser(
         "demo", help="run the main job on the built-in invented demo building",
         description="Run liftsort's main job on the built-in invented demo building "

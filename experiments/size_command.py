@@ -1,0 +1,51 @@
+"""`liftsort size`: the smallest group meeting the criteria under each rule."""
+from __future__ import annotations
+
+from roundtrip.building import Scenario
+
+from .compare_command import parse_rules
+from .sizing import default_criteria, size_group
+from .sweep import parse_range, progress_bar
+from .tables import dumps, grid_table
+from .wording import CAUTION
+
+
+def sizing(scenario: Scenario, args) -> dict:
+    cars = parse_range(args.cars, "--cars", whole=True, low=1, most=60)
+    loads = parse_range(args.loads, "--loads", whole=True, low=1) if args.loads else \
+        [scenario.group.rated_load_persons]
+    speeds = parse_range(args.speeds, "--speeds", whole=False, low=1e-9) if args.speeds else \
+        [scenario.group.rated_speed_mps]
+    rules = parse_rules(args.rules) if args.rules else ["random", "sorted", "sectors", "fewest-stops"]
+    criteria = default_criteria(scenario, args.interval_max, args.hc_min)
+    total = len(cars) * len(loads) * len(speeds)
+    with progress_bar(total, args.quiet or args.json, "sizing") as bar:
+        result = size_group(scenario, rules, criteria, cars, loads, speeds,
+                            poisson=not args.fixed, trials=args.trials,
+                            ci_target_pct=args.ci_target, seed=args.seed, threads=args.threads,
+                            on_candidate=bar.update)
+    return {"building": scenario.building.name, **result}
+
+
+def run(args, scenario: Scenario) -> int:
+    d = sizing(scenario, args)
+    if args.json:
+        out = dict(d)
+        out.pop("tried")
+        print(dumps(out))
+        return 0
+    c = d["criteria"]
+    print(f"{d['building']}: smallest group with interval <= {c['interval_max_s']:g} s and "
+          f"handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load")
+    rows = [[x["rule"], x["cars"] if x["found"] else "none", x["rated_load_persons"],
+             x["rated_speed_mps"], x["interval_s"], x["handling_capacity_pct_5min"],
+             x["round_trip_time_s"]] for x in d["designs"]]
+    print(grid_table(["rule", "cars", "load [persons]", "speed [m/s]", "INT [s]",
+                      "HC [%/5min]", "RTT [s]"], rows))
+    for s in d["savings"]:
+        print("- " + s["saving"])
+    for x in d["designs"]:
+        if not x["found"]:
+            print(f"- {x['rule']}: {x['message']}")
+    print("\n" + CAUTION)
+    return 0

@@ -1,0 +1,124 @@
+"""Sizing: the smallest lift group that meets up-peak criteria under each rule.
+
+Candidates are tried in the order a client pays for them: fewest cars first,
+then the smallest car (rated load), then the slowest rated speed; acceleration,
+jerk, door and transfer times stay as in the input file. Each candidate is run
+at its design load (capacity factor x rated load), every rule on the same
+batches, and meets the criteria when
+
+* its interval at design load is at most ``interval_max_s``, and
+* its handling capacity at design load is at least ``hc_min_pct`` % of the
+  population in five minutes.
+
+The first candidate meeting both is that rule's design. Defaults are the
+common office up-peak criteria: interval at most 30 s and a five-minute
+handling capacity of at least 12 % (CIBSE Guide D, 2015, office up-peak
+planning criteria, from memory), or the file's own demand when it gives one.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+from roundtrip.building import Scenario
+
+DEFAULT_INTERVAL_MAX_S = 30.0
+DEFAULT_HC_MIN_PCT = 12.0
+
+
+@dataclass(frozen=True)
+class Criteria:
+    interval_max_s: float
+    hc_min_pct: float
+
+
+def default_criteria(scenario: Scenario, interval_max_s=None, hc_min_pct=None) -> Criteria:
+    hc = hc_min_pct
+    if hc is None:
+        hc = scenario.traffic.arrival_rate_pct_5min if scenario.traffic else DEFAULT_HC_MIN_PCT
+    return Criteria(DEFAULT_INTERVAL_MAX_S if interval_max_s is None else interval_max_s, hc)
+
+
+def candidates(cars_list, loads, speeds):
+    """(cars, rated load, rated speed) in the order smallest first."""
+    return [(c, q, v) for c in sorted(cars_list) for q in sorted(loads) for v in sorted(speeds)]
+
+
+def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, speeds, *,
+               poisson: bool = True, trials=None, ci_target_pct: float = 0.5, seed: int = 0,
+               threads=None, on_candidate=None) -> dict:
+    """Search the candidates; returns {"designs": [...], "tried": [...], "savings": [...]}.
+
+    Every candidate runs all rules still without a design, on common batches; the
+    search stops as soon as every rule has one.
+    """
+    from roundtrip.group_montecarlo import compare_rules
+
+    wanted = list(dict.fromkeys(["random", *rules]))
+    found: dict[str, dict] = {}
+    tried = []
+    for cars, load, speed in candidates(cars_list, loads, speeds):
+        open_rules = [r for r in wanted if r not in found]
+        if not open_rules:
+            break
+        group = replace(scenario.group, cars=cars, rated_load_persons=load, rated_speed_mps=speed)
+        c = compare_rules(scenario.building, group, open_rules, group.design_load_persons,
+                          traffic=scenario.traffic, poisson=poisson, trials=trials,
+                          ci_target_pct=ci_target_pct, seed=seed, threads=threads)
+        for r in c.to_dict()["rules"]:
+            ok = (r["interval_s"] <= criteria.interval_max_s
+                  and r["handling_capacity_pct_5min"] >= criteria.hc_min_pct)
+            entry = {"rule": r["rule"], "cars": cars, "rated_load_persons": load,
+                     "rated_speed_mps": speed, "interval_s": r["interval_s"],
+                     "handling_capacity_pct_5min": r["handling_capacity_pct_5min"],
+                     "handling_capacity_ci95_pct": r["handling_capacity_pct_5min"]
+                     * r["ci95_s"] / r["round_trip_time_s"],
+                     "round_trip_time_s": r["round_trip_time_s"], "ci95_s": r["ci95_s"],
+                     "meets_criteria": ok}
+            tried.append(entry)
+            if ok and r["rule"] in open_rules:
+                found[r["rule"]] = {**entry, "found": True}
+        if on_candidate is not None:
+            on_candidate()
+    designs = []
+    for rule in wanted:
+        if rule in found:
+            designs.append(found[rule])
+        else:
+            designs.append({"rule": rule, "found": False, "cars": None, "rated_load_persons": None,
+                            "rated_speed_mps": None, "interval_s": None,
+                            "handling_capacity_pct_5min": None, "round_trip_time_s": None,
+                            "message": f"no candidate up to {max(cars_list)} cars x "
+                                       f"{max(loads)} persons at {max(speeds):g} m/s meets "
+                                       f"interval <= {criteria.interval_max_s:g} s and handling "
+                                       f"capacity >= {criteria.hc_min_pct:g} %"})
+    return {"criteria": {"interval_max_s": criteria.interval_max_s,
+                         "hc_min_pct": criteria.hc_min_pct},
+            "designs": designs, "tried": tried, "savings": savings(designs)}
+
+
+def savings(designs: list[dict]) -> list[dict]:
+    """What each rule saves against conventional control: cars, car size, speed or margin."""
+    base = designs[0]
+    out = []
+    for d in designs[1:]:
+        if not d["found"]:
+            text = f"{d['rule']}: no design meets the criteria"
+        elif not base["found"]:
+            text = (f"{d['rule']}: meets the criteria with {d['cars']} cars x "
+                    f"{d['rated_load_persons']} persons at {d['rated_speed_mps']:g} m/s, "
+                    f"where conventional control meets them with none of the candidates")
+        elif d["cars"] < base["cars"]:
+            text = f"{d['rule']}: saves {base['cars'] - d['cars']} car(s)"
+        elif d["rated_load_persons"] < base["rated_load_persons"]:
+            text = (f"{d['rule']}: same number of cars, smaller cars "
+                    f"({d['rated_load_persons']} instead of {base['rated_load_persons']} persons)")
+        elif d["rated_speed_mps"] < base["rated_speed_mps"]:
+            text = (f"{d['rule']}: same cars, slower rated speed "
+                    f"({d['rated_speed_mps']:g} instead of {base['rated_speed_mps']:g} m/s)")
+        else:
+            text = (f"{d['rule']}: same group; margin of handling capacity "
+                    f"{d['handling_capacity_pct_5min'] - base['handling_capacity_pct_5min']:+.1f} "
+                    f"points, interval {d['interval_s'] - base['interval_s']:+.1f} s")
+        out.append({"rule": d["rule"], "saving": text,
+                    "cars_saved": (base["cars"] - d["cars"]) if d["found"] and base["found"] else None})
+    return out

@@ -200,10 +200,26 @@ def build_parser() -> argparse.ArgumentParser:
     _add_json(sz)
     sz.set_defaults(handler="experiments.size_command")
 
+    rep = sub.add_parser(
+        "report", help="the whole job as one self-contained HTML report with charts",
+        description="Classical calculation, Monte Carlo, every rule, demand and cars-open "
+                    "sweeps and sizing, written as DIR/report.html (figures embedded; opens "
+                    "offline) beside the charts and sweep.csv.")
+    _add_file(rep)
+    rep.add_argument("--out", metavar="DIR", required=True, help="output folder")
+    rep.add_argument("--quiet", action="store_true", help="no progress bar")
+    _add_run_options(rep)
+    _add_json(rep)
+    rep.set_defaults(handler="experiments.report_command")
+
     demo = sub.add_parser(
         "demo", help="run the main job on the built-in invented demo building",
         description="Run liftsort's main job on the built-in invented demo building "
                     "(Larkspur Exchange) and print the results.")
+    demo.add_argument("--out", metavar="DIR", default="liftsort-demo",
+                      help="where the report and charts go (default: liftsort-demo)")
+    demo.add_argument("--seed", metavar="S", type=seed_type, default=2026,
+                      help="seed of the random stream (default 2026)")
     demo.set_defaults(handler="experiments.demo_command", file=None)
     return parser
 

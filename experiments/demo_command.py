@@ -4,16 +4,38 @@ from __future__ import annotations
 from roundtrip.inputfile import load_scenario
 
 from . import calc_command
-from .tables import key_value_table
+from .outputs import output_dir
+from .tables import grid_table, key_value_table
 from .wording import CAUTION
 
 
 def run(args, scenario=None) -> int:
     from .cli import demo_building_path
-    scenario = load_scenario(demo_building_path())
+    from .report_job import run_job
+    path = demo_building_path()
+    scenario = load_scenario(path)
     r = calc_command.classical_result(scenario, None, False)
     print(key_value_table(calc_command.result_rows(r),
-                          f"{scenario.building.name}: classical up-peak calculation (demand mode)"))
-    for line in calc_command.notes(r) + [CAUTION]:
+                          f"{scenario.building.name} (invented demo building): classical "
+                          f"up-peak calculation (demand mode)"))
+    for line in calc_command.notes(r):
         print("\n" + line)
+    out = output_dir(args.out)
+    result = run_job(scenario, path, out, seed=args.seed, quiet=False)
+    m = result["monte_carlo"]
+    print(f"\nMonte Carlo, conventional control at the demand: round-trip time "
+          f"{m['round_trip_time_s']:.1f} s ± {m['ci95_s']:.1f} s, interval {m['interval_s']:.1f} s"
+          f"{' (saturated: at design load)' if m['saturated'] else ''}.")
+    rows = [[x["rule"], x["round_trip_time_s"], x["ci95_s"], x["interval_s"], x["expected_stops"],
+             x["hc_gain_pct_vs_random"], x["hc_gain_ci95_pct"], x["design_hc"]]
+            for x in result["rules"]]
+    print("\nAllocation rules on the same passengers:")
+    print(grid_table(["rule", "RTT [s]", "+/-", "INT [s]", "stops", "HC gain [%]", "+/-",
+                      "HC at design load [%/5min]"], rows))
+    print("\nSizing (interval and handling capacity at design load):")
+    for s in result["sizing"]["savings"]:
+        print("- " + s["saving"])
+    print("\n" + result["headline"])
+    print(f"\nreport: {result['report']}")
+    print("\n" + CAUTION)
     return 0

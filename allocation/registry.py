@@ -28,6 +28,7 @@ the plain function for tests and diagrams.
 from __future__ import annotations
 
 import difflib
+import functools
 from dataclasses import dataclass
 from typing import Callable
 
@@ -52,7 +53,8 @@ class Rule:
     function : callable
         The plain Python function (runs anywhere numpy runs).
     compiled : object
-        The same function compiled for the Monte Carlo kernel.
+        The same function compiled for the Monte Carlo kernel (on first use,
+        from numba's on-disk cache when it is warm).
     prepare : callable or None
         ``prepare(building, group, cars_open, passengers_per_car) -> float64 array``.
     max_batch : int or None
@@ -63,9 +65,12 @@ class Rule:
     summary: str
     source: str
     function: Callable
-    compiled: object
     prepare: Callable | None = None
     max_batch: int | None = None
+
+    @functools.cached_property
+    def compiled(self):
+        return _compile(self.function)
 
     def params(self, building, group, cars_open: int, passengers_per_car: float) -> np.ndarray:
         if self.prepare is None:
@@ -104,7 +109,7 @@ def register(name: str, *, summary: str, source: str, prepare: Callable | None =
     def wrap(function: Callable) -> Callable:
         if name in RULES:
             raise ValueError(f"allocation rule {name!r} is registered twice")
-        RULES[name] = Rule(name, summary, source, function, _compile(function), prepare, max_batch)
+        RULES[name] = Rule(name, summary, source, function, prepare, max_batch)
         return function
     return wrap
 

@@ -320,3 +320,19 @@ def test_compare_json_has_the_contract_keys(tmp_path, capsys):
     assert "tiny batches" in capsys.readouterr().err
     assert main(["compare", str(f), "--passengers", "8", "--cars-open", "4"]) == 2
     assert "--cars-open" in capsys.readouterr().err
+
+
+def test_docs_table_is_made_from_the_registry():
+    """docs/rules.md is the registry's own table (regenerate: python -m allocation.rules_table)."""
+    from pathlib import Path
+
+    from allocation.rules_table import rules_markdown
+    committed = (Path(__file__).parent.parent / "docs" / "rules.md").read_text(encoding="utf-8")
+    assert committed == rules_markdown()
+
+
+def test_every_rule_is_described_in_two_sentences_with_a_source():
+    for rule in RULES.values():
+        sentences = [s for s in rule.summary.replace("e.g.", "eg").split(". ") if s.strip()]
+        assert 2 <= len(sentences) <= 3, rule.name
+        assert rule.source

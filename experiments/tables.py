@@ -40,6 +40,25 @@ def grid_table(header: list[str], rows: list[list[object]], digits: int = 2) -> 
     return "\n".join([line(header), line(["-" * w for w in widths])] + [line(r) for r in cells])
 
 
+def _plain(obj):
+    """numpy scalars (np.bool_, np.int64, ...) as Python values; nothing else."""
+    item = getattr(obj, "item", None)
+    if item is not None and getattr(obj, "shape", None) == ():
+        return item()
+    raise TypeError(f"Object of type {type(obj).__name__} is not JSON serializable")
+
+
+def _finite(obj):
+    """Replace NaN and infinities by None (JSON null): never write invalid JSON."""
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    if isinstance(obj, dict):
+        return {k: _finite(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_finite(v) for v in obj]
+    return obj
+
+
 def dumps(obj) -> str:
-    """JSON text; refuses NaN and infinities rather than writing invalid JSON."""
-    return json.dumps(obj, indent=2, allow_nan=False)
+    """JSON text: numpy scalars as plain values, NaN and infinities as null."""
+    return json.dumps(_finite(json.loads(json.dumps(obj, default=_plain))), indent=2, allow_nan=False)

@@ -1,0 +1,138 @@
+"""Sweeps, sizing, the report job and the experiment scripts, end to end (tiny trial counts)."""
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import pandas as pd
+import pytest
+
+from experiments.cli import main
+from experiments.sweep import parse_range
+from roundtrip.inputfile import InputError
+
+BUILDING = """
+[building]
+name = "{name}"
+floors = 9
+floor_heights_m = [4.5, 3.6, 3.6, 3.6, 3.6, 3.6, 3.6, 3.6, 4.0]
+population = [40, 70, 70, 70, 70, 70, 70, 60, 30]
+
+[group]
+cars = 3
+rated_load_persons = 13
+rated_speed_mps = 1.6
+acceleration_mps2 = 1.0
+jerk_mps3 = 1.5
+door_open_s = 1.8
+door_close_s = 2.9
+start_delay_s = 0.5
+
+[traffic]
+arrival_rate_pct_5min = 11.0
+"""
+
+
+@pytest.fixture
+def building_file(tmp_path):
+    f = tmp_path / "quarry.toml"
+    f.write_text(BUILDING.format(name="Quarry Mews"), encoding="utf-8")
+    return f
+
+
+def test_ranges_parse_and_refuse_clearly():
+    assert parse_range("6:10:2", "--arrival", whole=False, low=0) == [6, 8, 10]
+    assert parse_range("6:7:0.5", "--arrival", whole=False, low=0) == [6, 6.5, 7]
+    assert parse_range("3,4,5", "--cars", whole=True, low=1) == [3, 4, 5]
+    for bad, msg in (("20:6", "STOP"), ("6:20:0", "step"), ("a:3", "not a number"),
+                     ("1.5,2", "whole"), ("0:3", ">= 1")):
+        with pytest.raises(InputError, match=msg):
+            parse_range(bad, "--cars", whole=True, low=1)
+
+
+def test_sweep_writes_one_tidy_table(building_file, tmp_path, capsys):
+    out = tmp_path / "sw"
+    assert main(["sweep", str(building_file), "--arrival", "8:12:2", "--cars-open", "1,3",
+                 "--trials", "300", "--out", str(out), "--no-charts", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    table = pd.read_csv(out / "sweep.csv")
+    assert len(table) == len(d["rows"]) == 3 * 2 * 4          # points x cars open x rules
+    assert set(table["rule"]) == {"random", "sorted", "sectors", "fewest-stops"}
+    for col in ("round_trip_time_s", "ci95_s", "hc_gain_pct_vs_random", "hc_gain_ci95_pct",
+                "design_load_handling_capacity_pct_5min"):
+        assert table[col].notna().all()
+    base = table[table["rule"] == "random"]
+    assert (base["hc_gain_pct_vs_random"] == 0).all()          # baseline against itself
+    one_open = table[(table["cars_open"] == 1) & (table["rule"] == "sorted")]
+    assert one_open["hc_gain_pct_vs_random"].abs().max() < 1e-9  # k = 1 is conventional
+
+
+def test_sweep_refuses_bad_ranges(building_file, tmp_path, capsys):
+    assert main(["sweep", str(building_file), "--arrival", "20:6", "--out", str(tmp_path)]) == 2
+    err = capsys.readouterr().err
+    assert "--arrival" in err and "Traceback" not in err
+    assert not (tmp_path / "sweep.csv").exists()
+    assert main(["sweep", str(building_file), "--arrival", "8", "--cars-open", "7",
+                 "--out", str(tmp_path)]) == 2
+    assert "--cars-open" in capsys.readouterr().err
+
+
+def test_size_finds_the_smallest_group_and_says_when_none(building_file, capsys):
+    assert main(["size", str(building_file), "--cars", "1:6", "--trials", "400", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    keys = {"rule", "cars", "rated_load_persons", "rated_speed_mps", "interval_s",
+            "handling_capacity_pct_5min", "round_trip_time_s"}
+    designs = {x["rule"]: x for x in d["designs"]}
+    assert set(designs) == {"random", "sorted", "sectors", "fewest-stops"}
+    for x in designs.values():
+        assert keys <= set(x)
+        if x["found"]:
+            assert x["interval_s"] <= 30.0 and x["handling_capacity_pct_5min"] >= 11.0
+    # grouping never needs more cars than conventional control
+    assert designs["sorted"]["cars"] <= designs["random"]["cars"]
+    assert main(["size", str(building_file), "--cars", "1:2", "--interval-max", "1",
+                 "--trials", "300", "--json"]) == 0
+    none = json.loads(capsys.readouterr().out)["designs"]
+    assert all(not x["found"] and x["cars"] is None and "no candidate" in x["message"]
+               for x in none)
+
+
+@pytest.mark.slow
+def test_report_end_to_end_escapes_the_building_name(tmp_path, capsys):
+    f = tmp_path / "mark.toml"
+    f.write_text(BUILDING.format(name="<b>Quarry</b> & <script>alert(1)</script>"), encoding="utf-8")
+    out = tmp_path / "rep"
+    assert main(["report", str(f), "--out", str(out), "--trials", "300", "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "<script>alert(1)</script>" not in html
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
+    assert "data:image/png;base64," in html
+    assert d["headline"] and "caution" in html.lower()
+    for key, value in d["headline_numbers"].items():
+        assert f'data-key="{key}"' in html
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ["grouping_gain_vs_demand", "cars_open_needed",
+                                  "classical_vs_simulation"])
+def test_experiment_scripts_run_and_write_figure_and_csv(name, tmp_path):
+    import importlib
+    module = importlib.import_module(f"experiments.{name}")
+    assert module.__doc__ and "?" in module.QUESTION
+    table, paths = module.main(trials=300, seed=3, out_dir=tmp_path)
+    assert len(table) > 0
+    assert list(tmp_path.glob("*.csv"))
+    assert any(p.suffix == ".png" and p.stat().st_size > 0 for p in paths)
+    assert any(p.suffix == ".svg" for p in paths)
+
+
+def test_calc_starts_without_numba_pandas_or_seaborn(building_file):
+    """`liftsort calc` must answer fast: it may not import the heavy libraries."""
+    code = ("import sys; from experiments.cli import main; "
+            f"main(['calc', {str(building_file)!r}, '--json']); "
+            "heavy = [m for m in ('numba', 'pandas', 'seaborn', 'scipy', 'matplotlib') "
+            "if m in sys.modules]; print('HEAVY', heavy)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert "HEAVY []" in out.stdout

@@ -131,6 +131,8 @@ def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: 
     for rule in REPORT_RULES:
         at_demand[rule]["design_hc"] = float(design.loc[rule, "design_load_handling_capacity_pct_5min"])
 
+    out_dir = Path(out_dir)
+    out_dir.mkdir(parents=True, exist_ok=True)
     write_atomic(out_dir / "sweep.csv", sweep.to_csv(index=False))
     figures = []
     name = b.name

@@ -57,8 +57,8 @@ def notes(r: UppeakResult) -> list[str]:
                    f"against a demand of {r.demand_pct_5min:.1f} %. The figures above are at the design load.")
     if not r.rated_speed_reached_in_one_floor:
         out.append("Rated speed is not reached in a one-floor jump: the classical formula's "
-                   "assumption fails and it underestimates the round-trip time; "
-                   "use `liftsort simulate` for a Monte Carlo estimate.")
+                   "assumption fails and its round-trip time may be off in either direction; "
+                   "use `liftsort simulate` for a Monte Carlo estimate on the real kinematics.")
     return out
 
 

@@ -27,9 +27,16 @@ def write_atomic(path: Path, data: str | bytes) -> Path:
     try:
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as f:
             f.write(data)
+        os.chmod(tmp, 0o666 & ~_umask())          # as an ordinary file, not mkstemp's 0600
         os.replace(tmp, path)
     except BaseException:
         if os.path.exists(tmp):
             os.unlink(tmp)
         raise
     return path
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask

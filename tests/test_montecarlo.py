@@ -232,7 +232,8 @@ def test_monte_carlo_above_classical_when_one_floor_flight_is_below_the_cruise_l
     """With equal heights and t_f(d_f) <= d_f/v + v/a + a/j (here: rated speed far from
     reached in one floor), every k-floor jump costs at least t_f(d_f) + (k-1) t_v, so the
     trip model's exact expectation is at least the classical RTT: the classical
-    formula's one-floor assumption underestimates such a round trip."""
+    formula's one-floor assumption underestimates such a round trip (with rated speed
+    nearly reached in one floor it can overestimate instead: the condition matters)."""
     b = Building("tall-fast", (3.4,) * 5, (60.0, 20.0, 90.0, 30.0, 50.0))
     g = FAST_GROUP
     v, a, j = g.rated_speed_mps, g.acceleration_mps2, g.jerk_mps3

@@ -84,3 +84,39 @@ def test_report_opens_offline_with_every_chart_and_the_json_numbers(browser, tmp
         assert all(u.startswith(("file:", "data:")) for u in requests), requests
     finally:
         page.close()
+
+
+def test_liftsort_report_in_chromium_matches_its_json(browser, tmp_path, capsys):
+    """End to end: `liftsort report --json` on an invented building whose name carries
+    markup; the page shows that name as text, every chart loads, the headline numbers
+    equal the JSON output, and the console stays clean."""
+    from experiments.cli import main
+    f = tmp_path / "b.toml"
+    name = '<i>Ostler</i> & "Sons" <script>alert(2)</script>'
+    f.write_text(
+        f"[building]\nname = '{name}'\nfloors = 8\nfloor_height_m = 3.6\npopulation = 70\n"
+        "[group]\ncars = 3\nrated_load_persons = 13\nrated_speed_mps = 1.6\n"
+        "acceleration_mps2 = 1.0\njerk_mps3 = 1.5\ndoor_open_s = 1.8\ndoor_close_s = 2.9\n"
+        "[traffic]\narrival_rate_pct_5min = 11.0\n", encoding="utf-8")
+    assert main(["report", str(f), "--out", str(tmp_path / "out"), "--trials", "300",
+                 "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    page = browser.new_page()
+    errors = []
+    page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
+    page.on("pageerror", lambda e: errors.append(str(e)))
+    try:
+        page.goto(Path(out["report"]).as_uri(), wait_until="load")
+        images = page.eval_on_selector_all(
+            "img", "els => els.map(e => ({complete: e.complete, width: e.naturalWidth}))")
+        assert len(images) >= 7 and all(i["complete"] and i["width"] > 0 for i in images)
+        shown = dict(page.eval_on_selector_all(
+            "[data-key]", "els => els.map(e => [e.dataset.key, e.textContent.trim()])"))
+        assert set(shown) == set(out["headline_numbers"])
+        for key, value in out["headline_numbers"].items():
+            assert float(shown[key]) == pytest.approx(round(value, 1), abs=1e-9), key
+        assert page.inner_text("header .building") == name
+        assert page.evaluate("document.scripts.length") == 0
+        assert errors == []
+    finally:
+        page.close()

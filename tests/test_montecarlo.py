@@ -350,3 +350,33 @@ def test_bad_arguments_are_refused():
         simulate_trips(b, SLOW_GROUP, 5, ci_target_pct=0)
     with pytest.raises(ValueError, match="interfloor"):
         od_matrix(Building("one", (3.0,), (10.0,)), Traffic(5.0, 0.0, 0.0, 1.0))
+
+
+def test_simulate_command_json_keys_and_errors(tmp_path, capsys):
+    """`liftsort simulate --json`: the calc keys plus ci95_s, trials, iterations,
+    left_behind_share and seed; bad options exit 2."""
+    import json
+
+    from experiments.cli import main
+    f = tmp_path / "b.toml"
+    f.write_text('[building]\nname = "Tarn House"\nfloors = 10\nfloor_height_m = 3.5\n'
+                 'population = 80\n[group]\ncars = 4\nrated_load_persons = 13\n'
+                 'rated_speed_mps = 1.6\nacceleration_mps2 = 1.0\njerk_mps3 = 1.5\n'
+                 'door_open_s = 1.8\ndoor_close_s = 2.9\n[traffic]\narrival_rate_pct_5min = 11\n')
+    assert main(["simulate", str(f), "--json", "--seed", "4"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    for key in ("round_trip_time_s", "interval_s", "passengers_per_trip", "expected_stops",
+                "highest_reversal_floor", "handling_capacity_persons_5min",
+                "handling_capacity_pct_5min", "car_load_pct", "average_waiting_time_s",
+                "saturated", "ci95_s", "trials", "iterations", "left_behind_share", "seed"):
+        assert key in d, key
+    assert d["seed"] == 4 and d["iterations"] >= 1
+    assert d["ci95_s"] <= 0.005 * d["round_trip_time_s"]
+    assert main(["simulate", str(f), "--passengers", "8", "--fixed", "--trials", "500",
+                 "--json"]) == 0
+    d = json.loads(capsys.readouterr().out)
+    assert d["trials"] == 500 and d["passenger_model"] == "fixed"
+    for bad in (["--fixed", "--poisson"], ["--ci-target", "0"], ["--trials", "1"]):
+        with pytest.raises(SystemExit) as exit_:          # argparse: usage and exit 2
+            main(["simulate", str(f), *bad])
+        assert exit_.value.code == 2

@@ -17,6 +17,7 @@ from roundtrip import __version__
 from roundtrip.inputfile import InputError, load_scenario
 
 EXIT_BAD_INPUT = 2
+DEFAULT_RULES = "random,sorted,sectors,fewest-stops"
 
 
 def demo_building_path():
@@ -62,6 +63,14 @@ def _add_file(p: argparse.ArgumentParser) -> None:
 def _add_json(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true",
                    help="print exactly one JSON object on stdout instead of a table")
+
+
+def _add_counts(p: argparse.ArgumentParser) -> None:
+    counts = p.add_mutually_exclusive_group()
+    counts.add_argument("--fixed", action="store_true",
+                        help="fixed passenger counts (a real P mixes the two nearest integers)")
+    counts.add_argument("--poisson", action="store_true",
+                        help="Poisson passenger counts with mean P (the default)")
 
 
 def _add_run_options(p: argparse.ArgumentParser) -> None:
@@ -115,11 +124,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_file(sim)
     sim.add_argument("--passengers", metavar="P", type=passengers_type,
                      help="mean passengers offered per trip [persons], >= 0")
-    counts = sim.add_mutually_exclusive_group()
-    counts.add_argument("--fixed", action="store_true",
-                        help="fixed passenger counts (a real P mixes the two nearest integers)")
-    counts.add_argument("--poisson", action="store_true",
-                        help="Poisson passenger counts with mean P (the default)")
+    _add_counts(sim)
     _add_run_options(sim)
     _add_json(sim)
     sim.set_defaults(handler="experiments.simulate_command")
@@ -130,7 +135,7 @@ def build_parser() -> argparse.ArgumentParser:
                     "numbers). A trial is one batch of cars x P passengers; gains are against "
                     "`random` (conventional control) with paired 95 %% intervals.")
     _add_file(cmp_)
-    cmp_.add_argument("--rules", metavar="LIST", default="random,sorted,sectors,fewest-stops",
+    cmp_.add_argument("--rules", metavar="LIST", default=DEFAULT_RULES,
                       help="comma-separated allocation rules (default: random,sorted,sectors,"
                            "fewest-stops; also: best, round-robin)")
     cmp_.add_argument("--cars-open", metavar="K", type=_whole(1, "K must be a whole number of cars >= 1"),
@@ -138,10 +143,7 @@ def build_parser() -> argparse.ArgumentParser:
     cmp_.add_argument("--passengers", metavar="P", type=passengers_type,
                       help="mean passengers per car per round [persons] (default: the demand's "
                            "Monte Carlo fixed point under conventional control)")
-    counts = cmp_.add_mutually_exclusive_group()
-    counts.add_argument("--fixed", action="store_true", help="fixed passenger counts")
-    counts.add_argument("--poisson", action="store_true",
-                        help="Poisson passenger counts (the default)")
+    _add_counts(cmp_)
     _add_run_options(cmp_)
     _add_json(cmp_)
     cmp_.set_defaults(handler="experiments.compare_command")
@@ -160,7 +162,7 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("--cars-open", metavar="LIST",
                     help="cars open to allocation, a comma list (default: all cars); values "
                          "above a group's cars are skipped for that group")
-    sw.add_argument("--rules", metavar="LIST", default="random,sorted,sectors,fewest-stops",
+    sw.add_argument("--rules", metavar="LIST", default=DEFAULT_RULES,
                     help="comma-separated allocation rules (default: random,sorted,sectors,"
                          "fewest-stops)")
     sw.add_argument("--out", metavar="DIR", default="liftsort-out",

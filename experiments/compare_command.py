@@ -7,9 +7,6 @@ from roundtrip.inputfile import InputError
 from .tables import dumps, grid_table
 from .wording import CAUTION
 
-DEFAULT_RULES = "random,sorted,sectors,fewest-stops"
-
-
 def parse_rules(text: str) -> list[str]:
     """Rule names from a comma list, each checked against the registry."""
     from allocation.registry import get_rule

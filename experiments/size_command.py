@@ -16,7 +16,8 @@ def sizing(scenario: Scenario, args) -> dict:
         [scenario.group.rated_load_persons]
     speeds = parse_range(args.speeds, "--speeds", whole=False, low=1e-9) if args.speeds else \
         [scenario.group.rated_speed_mps]
-    rules = parse_rules(args.rules) if args.rules else ["random", "sorted", "sectors", "fewest-stops"]
+    from .cli import DEFAULT_RULES
+    rules = parse_rules(args.rules or DEFAULT_RULES)
     criteria = default_criteria(scenario, args.interval_max, args.hc_min)
     total = len(cars) * len(loads) * len(speeds)
     with progress_bar(total, args.quiet or args.json, "sizing") as bar:

@@ -257,29 +257,41 @@ def sweep_charts(table, out_dir, building_name: str) -> list[Path]:
     return paths
 
 
-def _rtt_interval_chart(groups, out_dir, name) -> list[Path]:
+def _panels_vs_demand(groups, panels, title: str, stem: str, out_dir, *,
+                      skip_baseline: bool = False) -> list[Path]:
+    """Two panels per group: each ``(column, half_width(rows), panel title, y label)``
+    drawn against demand, one line per rule with its 95 % band."""
     with _style():
         fig, axes = _figure(len(groups), 2, 10.0, 1.0 + 3.6 * len(groups), sharex=True)
-        for (label, rows), (ax_rtt, ax_int) in zip(groups, axes):
-            for ax in (ax_rtt, ax_int):
+        for (label, rows), row_axes in zip(groups, axes):
+            for ax in row_axes:
                 _shade_saturated(ax, rows)
+                if skip_baseline:
+                    ax.axhline(0.0, color=_BASELINE_COLOUR, linewidth=1.0, linestyle="--",
+                               label="conventional control (random)")
             for rule in _rules(rows):
+                if skip_baseline and rule == BASELINE:
+                    continue
                 r = rows[rows["rule"] == rule]
                 x = r["arrival_rate_pct_5min"]
-                ax_rtt.plot(x, r["round_trip_time_s"], **_line_style(rule))
-                _band(ax_rtt, x, r["round_trip_time_s"], r["ci95_s"], rule)
-                ax_int.plot(x, r["interval_s"], **_line_style(rule))
-                _band(ax_int, x, r["interval_s"], r["ci95_s"] / r["cars"], rule)
-            ax_rtt.set_title(_panel_title("Round-trip time", label), loc="left")
-            ax_int.set_title(_panel_title("Interval", label), loc="left")
-            ax_rtt.set_ylabel("round-trip time [s]")
-            ax_int.set_ylabel("interval [s]")
+                for ax, (column, half, _, _) in zip(row_axes, panels):
+                    ax.plot(x, r[column], **_line_style(rule))
+                    _band(ax, x, r[column], half(r), rule)
+            for ax, (_, _, panel, ylabel) in zip(row_axes, panels):
+                ax.set_title(_panel_title(panel, label), loc="left")
+                ax.set_ylabel(ylabel)
         for ax in axes[-1]:
             ax.set_xlabel(DEMAND_LABEL)
-        _suptitle(fig, f"{name}: round-trip time and interval against demand "
-                     f"(bands: 95 % intervals)")
+        _suptitle(fig, title)
         _legend_below(fig, axes)
-        return _save(fig, out_dir, "rtt_interval_vs_demand")
+        return _save(fig, out_dir, stem)
+
+
+def _rtt_interval_chart(groups, out_dir, name) -> list[Path]:
+    panels = [("round_trip_time_s", lambda r: r["ci95_s"], "Round-trip time", "round-trip time [s]"),
+              ("interval_s", lambda r: r["ci95_s"] / r["cars"], "Interval", "interval [s]")]
+    return _panels_vs_demand(groups, panels, f"{name}: round-trip time and interval against "
+                             f"demand (bands: 95 % intervals)", "rtt_interval_vs_demand", out_dir)
 
 
 def _capacity_chart(groups, out_dir, name) -> list[Path]:
@@ -320,32 +332,13 @@ def _capacity_chart(groups, out_dir, name) -> list[Path]:
 
 
 def _gain_chart(groups, out_dir, name) -> list[Path]:
-    with _style():
-        fig, axes = _figure(len(groups), 2, 10.0, 1.0 + 3.6 * len(groups), sharex=True)
-        for (label, rows), (ax_hc, ax_rtt) in zip(groups, axes):
-            for ax in (ax_hc, ax_rtt):
-                _shade_saturated(ax, rows)
-                ax.axhline(0.0, color=_BASELINE_COLOUR, linewidth=1.0, linestyle="--",
-                           label="conventional control (random)")
-            for rule in _rules(rows):
-                if rule == BASELINE:
-                    continue
-                r = rows[rows["rule"] == rule]
-                x = r["arrival_rate_pct_5min"]
-                ax_hc.plot(x, r["hc_gain_pct_vs_random"], **_line_style(rule))
-                _band(ax_hc, x, r["hc_gain_pct_vs_random"], r["hc_gain_ci95_pct"], rule)
-                ax_rtt.plot(x, r["rtt_gain_pct_vs_random"], **_line_style(rule))
-                _band(ax_rtt, x, r["rtt_gain_pct_vs_random"], r["rtt_gain_ci95_pct"], rule)
-            ax_hc.set_title(_panel_title("Handling-capacity gain", label), loc="left")
-            ax_rtt.set_title(_panel_title("Round-trip-time reduction", label), loc="left")
-            ax_hc.set_ylabel("handling-capacity gain vs random [%]")
-            ax_rtt.set_ylabel("round-trip-time reduction vs random [%]")
-        for ax in axes[-1]:
-            ax.set_xlabel(DEMAND_LABEL)
-        _suptitle(fig, f"{name}: grouping gain against demand, same passengers "
-                     f"(bands: paired 95 % intervals)")
-        _legend_below(fig, axes)
-        return _save(fig, out_dir, "gain_vs_demand")
+    panels = [("hc_gain_pct_vs_random", lambda r: r["hc_gain_ci95_pct"],
+               "Handling-capacity gain", "handling-capacity gain vs random [%]"),
+              ("rtt_gain_pct_vs_random", lambda r: r["rtt_gain_ci95_pct"],
+               "Round-trip-time reduction", "round-trip-time reduction vs random [%]")]
+    return _panels_vs_demand(groups, panels, f"{name}: grouping gain against demand, same "
+                             f"passengers (bands: paired 95 % intervals)", "gain_vs_demand",
+                             out_dir, skip_baseline=True)
 
 
 def cars_open_chart(table, out_dir, building_name: str) -> list[Path]:

@@ -171,7 +171,9 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
         "headline_numbers": numbers,
         "inputs": input_rows(scenario),
         "method": _method(),
-        "assumptions": _assumptions(),
+        "assumptions": _assumptions() + ([] if scenario.traffic else [
+            "The input gives no [traffic] section: a design demand of 12 % of the population "
+            "in 5 minutes, up-peak, is assumed (common office practice)."]),
         "sources": _sources(),
         "tables": _tables(classical, mc, at_demand, sizing, criteria),
         "figures": figures,

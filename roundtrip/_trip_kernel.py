@@ -176,47 +176,30 @@ def _route(up_mask, dn_mask, flight_s):
     return flight, stops, highest, lowest
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
              transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row):
     """Time one car's round trip with its ``n`` passengers (first n of orig, dest).
 
     Writes the trip's integer figures into ``counts_out[row]`` (see the column
-    constants) and returns the round-trip time [s].
+    constants) and returns the round-trip time [s]. A trip whose passengers all
+    board at the lobby takes the short up-peak path; any other goes through the
+    floor-by-floor sweeps.
     """
-    one = np.uint64(1)
-    all_from_lobby = True
+    lobby_only = True
     for i in range(n):
         if orig[i] != 0:
-            all_from_lobby = False
+            lobby_only = False
             break
-    if all_from_lobby:
-        # Up-peak trip: everyone waits at the lobby, so the first `capacity`
-        # passengers in arrival order board and the rest are left behind.
-        boarded = min(n, capacity)
-        up_mask = np.uint64(0)
-        for i in range(boarded):
-            up_mask |= one << np.uint64(dest[i])
-        dn_mask = np.uint64(0)
-        peak = boarded
-        left = n - boarded
-        lobby = n > 0
-    else:
-        b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, capacity,
-                                                  scratch_order, scratch_alight, scratch_mask)
-        up_mask = scratch_mask[0]
-        b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, capacity,
-                                                  scratch_order, scratch_alight, scratch_mask)
-        dn_mask = scratch_mask[0]
-        boarded = b_up + b_dn
-        peak = max(peak_up, peak_dn)
-        left = left_up + left_dn
-        lobby = lobby_up or lobby_dn
-    flight, stops, highest, lowest = _route(up_mask, dn_mask, flight_s)
-    if lobby or lowest < 0:
-        lowest = 0
-    total_stops = stops + 1                           # the lobby, once per trip
-    time = flight + total_stops * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s
+    if lobby_only:
+        return _lobby_trip(dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
+                           transfer_out_s, counts_out, row)
+    return _mixed_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
+                       transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row)
+
+
+@njit(cache=True, inline="always")
+def _write_counts(counts_out, row, stops, highest, lowest, boarded, peak, left, n):
     counts_out[row, STOPS] = stops
     counts_out[row, HIGHEST] = highest
     counts_out[row, LOWEST] = lowest
@@ -224,7 +207,40 @@ def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
     counts_out[row, PEAK_LOAD] = peak
     counts_out[row, LEFT_BEHIND] = left
     counts_out[row, OFFERED] = n
-    return time
+
+
+@njit(cache=True, inline="always")
+def _lobby_trip(dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s, transfer_out_s,
+                counts_out, row):
+    """Up-peak trip: everyone waits at the lobby, so the first ``capacity``
+    passengers in arrival order board and the rest are left behind."""
+    one = np.uint64(1)
+    boarded = min(n, capacity)
+    up_mask = np.uint64(0)
+    for i in range(boarded):
+        up_mask |= one << np.uint64(dest[i])
+    flight, stops, highest, lowest = _route(up_mask, np.uint64(0), flight_s)
+    _write_counts(counts_out, row, stops, highest, 0, boarded, boarded, n - boarded, n)
+    return flight + (stops + 1) * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s
+
+
+@njit(cache=True)
+def _mixed_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
+                transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row):
+    """Any trip: the up sweep and the down sweep decide who boards, then the route."""
+    b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, capacity,
+                                              scratch_order, scratch_alight, scratch_mask)
+    up_mask = scratch_mask[0]
+    b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, capacity,
+                                              scratch_order, scratch_alight, scratch_mask)
+    dn_mask = scratch_mask[0]
+    boarded = b_up + b_dn
+    flight, stops, highest, lowest = _route(up_mask, dn_mask, flight_s)
+    if lobby_up or lobby_dn or lowest < 0:
+        lowest = 0
+    _write_counts(counts_out, row, stops, highest, lowest, boarded, max(peak_up, peak_dn),
+                  left_up + left_dn, n)
+    return flight + (stops + 1) * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s
 
 
 @njit(cache=True)

@@ -9,15 +9,20 @@ from .tables import dumps, key_value_table
 from .wording import CAUTION
 
 
+def require_traffic(scenario: Scenario) -> None:
+    """Demand mode needs the [traffic] section: a clear input error when it is absent."""
+    if scenario.traffic is None:
+        raise InputError(["[traffic] is missing: demand mode needs "
+                          "traffic.arrival_rate_pct_5min; give it, or give --passengers P."],
+                         scenario.source)
+
+
 def classical_result(scenario: Scenario, passengers: float | None, poisson: bool) -> UppeakResult:
     """Given-load mode when ``passengers`` is set, otherwise demand mode."""
     if passengers is not None:
         return uppeak_calculation(scenario.building, scenario.group, passengers, poisson,
                                   traffic=scenario.traffic)
-    if scenario.traffic is None:
-        raise InputError(["[traffic] is missing: demand mode needs "
-                          "traffic.arrival_rate_pct_5min; give it, or give --passengers P."],
-                         scenario.source)
+    require_traffic(scenario)
     return demand_calculation(scenario.building, scenario.group, scenario.traffic, poisson)
 
 

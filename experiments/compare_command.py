@@ -4,6 +4,7 @@ from __future__ import annotations
 from roundtrip.building import Scenario
 from roundtrip.inputfile import InputError
 
+from .calc_command import require_traffic
 from .tables import dumps, grid_table
 from .wording import CAUTION
 
@@ -27,10 +28,7 @@ def parse_rules(text: str) -> list[str]:
 def demand_passengers_per_car(scenario: Scenario, poisson: bool, seed: int, threads=None):
     """P for demand mode: the Monte Carlo fixed point under conventional control."""
     from roundtrip.montecarlo import simulate_demand
-    if scenario.traffic is None:
-        raise InputError(["[traffic] is missing: demand mode needs "
-                          "traffic.arrival_rate_pct_5min; give it, or give --passengers P."],
-                         scenario.source)
+    require_traffic(scenario)
     r = simulate_demand(scenario.building, scenario.group, scenario.traffic, poisson=poisson,
                         seed=seed, threads=threads)
     return r.passengers_per_trip, r.saturated

@@ -4,6 +4,7 @@ from __future__ import annotations
 from roundtrip.building import Scenario
 from roundtrip.inputfile import InputError
 
+from .calc_command import require_traffic
 from .tables import dumps, grid_table
 from .wording import CAUTION
 
@@ -15,21 +16,17 @@ def monte_carlo_result(scenario: Scenario, args):
     if args.passengers is not None:
         return simulate_trips(scenario.building, scenario.group, args.passengers,
                               traffic=scenario.traffic, **run)
-    if scenario.traffic is None:
-        raise InputError(["[traffic] is missing: demand mode needs "
-                          "traffic.arrival_rate_pct_5min; give it, or give --passengers P."],
-                         scenario.source)
-    try:
-        return simulate_demand(scenario.building, scenario.group, scenario.traffic, **run)
-    except ValueError as exc:          # e.g. interfloor traffic with one populated floor
-        raise InputError([str(exc)], scenario.source) from None
+    require_traffic(scenario)
+    return simulate_demand(scenario.building, scenario.group, scenario.traffic, **run)
 
 
 def run(args, scenario: Scenario) -> int:
     from .calc_command import classical_result
     try:
         r = monte_carlo_result(scenario, args)
-    except ValueError as exc:
+    except InputError:
+        raise
+    except ValueError as exc:          # e.g. interfloor traffic with one populated floor
         raise InputError([str(exc)], scenario.source) from None
     d = r.to_dict()
     if args.json:

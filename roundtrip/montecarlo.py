@@ -21,7 +21,7 @@ runs exactly N.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -362,7 +362,7 @@ def simulate_demand(building: Building, group: LiftGroup, traffic: Traffic, *,
     trace = [{"passengers_per_trip": p_design, "round_trip_time_s": at_design.round_trip_time.mean,
               "ci95_s": at_design.round_trip_time.ci95}]
     if lam * at_design.round_trip_time.mean / group.cars > p_design:
-        return _replace(at_design, mode="demand", saturated=True, iterations=1,
+        return replace(at_design, mode="demand", saturated=True, iterations=1,
                         trace=tuple(trace), demand_pct_5min=traffic.arrival_rate_pct_5min)
     rtt = demand_calculation(building, group, traffic, poisson).round_trip_time_s
     result = None
@@ -377,11 +377,6 @@ def simulate_demand(building: Building, group: LiftGroup, traffic: Traffic, *,
             converged = True
             break
         rtt = new
-    return _replace(result, mode="demand", saturated=False, iterations=len(trace),
+    return replace(result, mode="demand", saturated=False, iterations=len(trace),
                     trace=tuple(trace), converged=converged,
                     demand_pct_5min=traffic.arrival_rate_pct_5min)
-
-
-def _replace(result: MonteCarloResult, **changes) -> MonteCarloResult:
-    from dataclasses import replace
-    return replace(result, **changes)

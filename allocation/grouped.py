@@ -1,7 +1,7 @@
 """`sorted`: destination grouping by sorting the batch on destination."""
 from __future__ import annotations
 
-from .ordering import destination_order, equal_cut
+from .ordering import all_at_lobby, destination_order, equal_cut, equal_cut_by_destination
 from .registry import register
 
 
@@ -15,6 +15,9 @@ from .registry import register
            "destination control, from memory).")
 def allocate_sorted(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     n = origins.shape[0]
+    if all_at_lobby(origins):             # up-peak: the same cut, found without sorting
+        equal_cut_by_destination(destinations, cars_open, car_out, scratch)
+        return
     order = scratch[:n]
     destination_order(origins, destinations, order, scratch[n:])
     equal_cut(order, n, cars_open, car_out)

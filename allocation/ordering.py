@@ -22,23 +22,28 @@ def destination_order(origins, destinations, order_out, work):
     n = origins.shape[0]
     if n == 0:
         return
-    levels = 1
-    lobby_only = True
+    above = 0                             # any origin above the lobby (OR of the origins)
+    top = 0
     for i in range(n):
-        levels = max(levels, origins[i] + 1, destinations[i] + 1)
-        if origins[i] != 0:
-            lobby_only = False
-    count = work[:2 * levels + 1]
-    count[:] = 0
-    if lobby_only:                        # up-peak: the destination is the whole key
+        above |= origins[i]
+        top = max(top, destinations[i])
+    if above == 0:                        # up-peak: the destination is the whole key
+        count = work[:top + 2]
+        count[:] = 0
         for i in range(n):
             count[destinations[i] + 1] += 1
-        for k in range(1, levels + 1):
+        for k in range(1, top + 2):
             count[k] += count[k - 1]
         for i in range(n):
-            order_out[count[destinations[i]]] = i
-            count[destinations[i]] += 1
+            d = destinations[i]
+            order_out[count[d]] = i
+            count[d] += 1
         return
+    levels = 1
+    for i in range(n):
+        levels = max(levels, origins[i] + 1, destinations[i] + 1)
+    count = work[:2 * levels + 1]
+    count[:] = 0
     tmp = work[2 * levels + 1:2 * levels + 1 + n]
     for i in range(n):                    # pass 1: by the minor key
         count[_minor_key(origins[i], destinations[i], levels) + 1] += 1
@@ -70,6 +75,65 @@ def _major_key(o, d, levels):
 def _minor_key(o, d, levels):
     """Up: the origin; down: the destination, descending."""
     return o if d > o else levels - 1 - d
+
+
+@njit(cache=True, inline="always")
+def all_at_lobby(origins):
+    """True when every passenger boards at the lobby (floor 0), as in up-peak."""
+    above = 0
+    for i in range(origins.shape[0]):
+        above |= origins[i]                # origins are >= 0: the OR is 0 only if all are
+    return above == 0
+
+
+@njit(cache=True, inline="always")
+def lobby_rank_starts(destinations, work):
+    """For a batch boarding at the lobby: where each floor's passengers start in
+    :func:`destination_order`.
+
+    With every origin at the lobby the stable destination order puts the
+    passengers for floor f at ranks start_f, start_f + 1, ... in arrival order,
+    start_f being the number bound for floors below f. Writes start_f into
+    ``work[f]`` for f = 0 ... top + 1 (``work[top + 1]`` = n) and returns top,
+    the highest destination. ``work`` needs top + 2 entries.
+    """
+    n = destinations.shape[0]
+    top = 0
+    for i in range(n):
+        top = max(top, destinations[i])
+    start = work[:top + 2]
+    start[:] = 0
+    for i in range(n):
+        start[destinations[i] + 1] += 1
+    for f in range(1, top + 2):
+        start[f] += start[f - 1]
+    return top
+
+
+@njit(cache=True, inline="always")
+def cars_from_ranks(destinations, car_of_rank, next_rank, car_out):
+    """Each passenger's car is the car of their rank in the destination order, counted
+    on the fly from ``next_rank`` (the starts of :func:`lobby_rank_starts`, used up)."""
+    for i in range(destinations.shape[0]):
+        d = destinations[i]
+        car_out[i] = car_of_rank[next_rank[d]]
+        next_rank[d] += 1
+
+
+@njit(cache=True, inline="always")
+def equal_cut_by_destination(destinations, cars, car_out, work):
+    """:func:`destination_order` then :func:`equal_cut`, for a batch boarding at the
+    lobby, without building the order: the equal cut is made on the ranks and each
+    passenger reads the car of their rank. ``work`` needs n + floors + 2 entries."""
+    n = destinations.shape[0]
+    if n == 0:
+        return
+    top = lobby_rank_starts(destinations, work)
+    car_of_rank = work[top + 2:top + 2 + n]
+    for c in range(cars):
+        for r in range(c * n // cars, (c + 1) * n // cars):
+            car_of_rank[r] = c
+    cars_from_ranks(destinations, car_of_rank, work[:top + 2], car_out)
 
 
 @njit(cache=True)

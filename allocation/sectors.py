@@ -21,8 +21,9 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from numba import njit
 
-from .ordering import destination_order
+from .ordering import all_at_lobby, cars_from_ranks, destination_order, lobby_rank_starts
 from .registry import register
 
 
@@ -99,8 +100,42 @@ def prepare_sectors(building, group, cars_open, passengers_per_car):
 def allocate_sectors(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     """Each passenger's car is the band of their upper floor (destination going up,
     origin going down). When a band's car has its limit (its equal share of the
-    batch), the passenger goes to the nearest band with room (the lower one on a tie). Passengers are taken in destination order, so the
-    result does not depend on the order they are listed in."""
+    batch), the passenger goes to the nearest band with room (the lower one on a
+    tie). Passengers are taken in destination order, so the result does not depend
+    on the order they are listed in.
+
+    When every passenger boards at the lobby the destination order is by floor
+    alone, and the same allocation is found from the floor counts (see
+    :func:`sectors_by_floor_counts`) without sorting the passengers."""
+    if origins.shape[0] > 0 and all_at_lobby(origins):
+        sectors_by_floor_counts(destinations, cars_open, car_limit, params, scratch, car_out)
+    else:
+        sectors_in_order(origins, destinations, cars_open, car_limit, params, scratch, car_out)
+
+
+@njit(cache=True, inline="always")
+def _home_car(floor, cars_open, params):
+    """The car of the band ``floor`` lies in (the top car above the table)."""
+    home = int(params[floor]) if floor < params.shape[0] else cars_open - 1
+    return min(home, cars_open - 1)
+
+
+@njit(cache=True, inline="always")
+def _nearest_with_room(home, cars_open, car_limit, load):
+    """``home`` if it has room, else the nearest car with room (the lower on a tie), or -1."""
+    for step in range(cars_open):
+        lower = home - step
+        upper = home + step
+        if lower >= 0 and load[lower] < car_limit:
+            return lower
+        if upper < cars_open and load[upper] < car_limit:
+            return upper
+    return -1
+
+
+@njit(cache=True)
+def sectors_in_order(origins, destinations, cars_open, car_limit, params, scratch, car_out):
+    """The rule as stated: passengers one by one in :func:`destination_order`."""
     n = origins.shape[0]
     order = scratch[:n]
     load = scratch[n:n + cars_open]
@@ -109,19 +144,41 @@ def allocate_sectors(origins, destinations, cars_open, car_limit, params, scratc
     for r in range(n):
         i = order[r]
         floor = destinations[i] if destinations[i] > origins[i] else origins[i]
-        home = int(params[floor]) if floor < params.shape[0] else cars_open - 1
-        if home >= cars_open:
-            home = cars_open - 1
-        car = -1
-        for step in range(cars_open):
-            lower = home - step
-            upper = home + step
-            if lower >= 0 and load[lower] < car_limit:
-                car = lower
-                break
-            if upper < cars_open and load[upper] < car_limit:
-                car = upper
-                break
+        car = _nearest_with_room(_home_car(floor, cars_open, params), cars_open, car_limit, load)
         car_out[i] = car
         if car >= 0:
             load[car] += 1
+
+
+@njit(cache=True, inline="always")
+def sectors_by_floor_counts(destinations, cars_open, car_limit, params, scratch, car_out):
+    """The same allocation as :func:`sectors_in_order` for a batch boarding at the lobby.
+
+    In destination order the passengers for one floor come together, in arrival
+    order, and all search the cars in the same order; loads only grow, so they
+    fill one car, then the next. The floors are therefore walked once with their
+    counts, giving each run of ranks in the destination order its car, and each
+    passenger then reads the car of their rank (as :func:`equal_cut_by_destination`).
+    """
+    n = destinations.shape[0]
+    top = lobby_rank_starts(destinations, scratch)
+    start = scratch[:top + 2]
+    load = scratch[top + 2:top + 2 + cars_open]
+    car_of_rank = scratch[top + 2 + cars_open:top + 2 + cars_open + n]
+    load[:] = 0
+    for f in range(1, top + 1):
+        r = start[f]
+        left = start[f + 1] - r
+        if left == 0:
+            continue
+        home = _home_car(f, cars_open, params)
+        while left > 0:
+            car = _nearest_with_room(home, cars_open, car_limit, load)
+            take = left if car < 0 else min(left, car_limit - load[car])
+            for j in range(r, r + take):
+                car_of_rank[j] = car
+            r += take
+            left -= take
+            if car >= 0:
+                load[car] += take
+    cars_from_ranks(destinations, car_of_rank, start, car_out)

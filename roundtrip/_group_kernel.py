@@ -19,7 +19,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit, prange
 
-from ._trip_kernel import _sample_cells, car_trip
+from ._trip_kernel import _sample_cells, car_trip, lobby_trip_of_mask
 
 
 @njit(cache=True)
@@ -40,10 +40,14 @@ def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, c
     order = np.empty(longest, np.int64)
     alight = np.empty(n_levels, np.int64)
     mask = np.empty(1, np.uint64)
+    up_mask = np.empty(cars_open, np.uint64)
+    mixed = np.empty(cars_open, np.bool_)
+    one = np.uint64(1)
     for t in range(first, last):
         s = offsets[t]
         n = offsets[t + 1] - s
         _sample_cells(uniforms[s:s + n], alias_prob, alias_cell, cell_origin, cell_dest, orig, dest)
+        counts_t = counts_out[t]
         unallocated = 0
         for c0 in range(0, n_cars, cars_open):
             c1 = min(n_cars, c0 + cars_open)
@@ -55,14 +59,34 @@ def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, c
             limit = min(rated_load, (fits + k - 1) // k)
             car_of[:fits] = -1
             rule(orig[a:a + fits], dest[a:a + fits], k, limit, params[k], scratch, car_of[:fits])
-            # each car's passengers, in arrival order (a stable counting sort by car)
-            start[:] = 0
+            # One pass in arrival order: each car's passenger count, and, while all its
+            # passengers board at the lobby, the stop mask of the first rated-load of them
+            # (those who board, as in the one-car model's up-peak path).
+            start[:k + 1] = 0
+            up_mask[:k] = 0
+            mixed[:k] = False
+            any_mixed = False
             for i in range(fits):
                 c = car_of[i]
                 if 0 <= c < k:
                     start[c + 1] += 1
+                    if orig[a + i] != 0:
+                        mixed[c] = True
+                        any_mixed = True
+                    elif start[c + 1] <= rated_load:
+                        up_mask[c] |= one << np.uint64(dest[a + i])
                 else:
                     unallocated += 1
+            for c in range(k):
+                if not mixed[c]:
+                    offered = start[c + 1]
+                    rtt_out[t, c0 + c] = lobby_trip_of_mask(
+                        up_mask[c], offered, min(offered, rated_load), flight_s, stop_overhead_s,
+                        transfer_in_s, transfer_out_s, counts_t, c0 + c)
+            if not any_mixed:
+                continue
+            # cars with any passenger boarding above the lobby: each car's passengers in
+            # arrival order (a stable counting sort by car), timed by the one-car model
             for c in range(k):
                 start[c + 1] += start[c]
             for i in range(fits):
@@ -74,10 +98,11 @@ def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, c
             lo = 0
             for c in range(k):
                 hi = start[c]
-                rtt_out[t, c0 + c] = car_trip(o_car[lo:hi], d_car[lo:hi], hi - lo, flight_s,
-                                              rated_load, stop_overhead_s, transfer_in_s,
-                                              transfer_out_s, order, alight, mask, counts_out[t],
-                                              c0 + c)
+                if mixed[c]:
+                    rtt_out[t, c0 + c] = car_trip(o_car[lo:hi], d_car[lo:hi], hi - lo, flight_s,
+                                                  rated_load, stop_overhead_s, transfer_in_s,
+                                                  transfer_out_s, order, alight, mask, counts_t,
+                                                  c0 + c)
                 lo = hi
         unallocated_out[t] = unallocated
 

@@ -219,6 +219,16 @@ def _lobby_trip(dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s, tra
     up_mask = np.uint64(0)
     for i in range(boarded):
         up_mask |= one << np.uint64(dest[i])
+    return lobby_trip_of_mask(up_mask, n, boarded, flight_s, stop_overhead_s, transfer_in_s,
+                              transfer_out_s, counts_out, row)
+
+
+@njit(cache=True, inline="always")
+def lobby_trip_of_mask(up_mask, n, boarded, flight_s, stop_overhead_s, transfer_in_s,
+                       transfer_out_s, counts_out, row):
+    """The up-peak trip once its stops are known: ``up_mask`` holds the destinations of
+    the ``boarded`` passengers (of ``n`` offered at the lobby). Writes counts_out[row]
+    and returns the round-trip time [s]."""
     flight, stops, highest, lowest = _route(up_mask, np.uint64(0), flight_s)
     _write_counts(counts_out, row, stops, highest, 0, boarded, boarded, n - boarded, n)
     return flight + (stops + 1) * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s

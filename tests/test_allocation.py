@@ -13,8 +13,10 @@ import pytest
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
-from allocation.registry import RULES, car_limit, get_rule
-from allocation.sectors import band_round_trip_s, floor_bands
+from allocation.ordering import destination_order, equal_cut, equal_cut_by_destination
+from allocation.registry import RULES, car_limit, get_rule, scratch_size
+from allocation.sectors import (band_round_trip_s, floor_bands, sectors_by_floor_counts,
+                                sectors_in_order)
 from experiments.cli import main
 from roundtrip import _group_kernel as G
 from roundtrip import _trip_kernel as K
@@ -145,6 +147,48 @@ def test_grouping_rules_ignore_the_listing_order(bp, k, rule, perm_seed):
     a, _ = allocate(rule, building, group, pairs, k)
     b, _ = allocate(rule, building, group, shuffled, k)
     assert car_groups(pairs, a, k) == car_groups(shuffled, b, k)
+
+
+@settings(max_examples=80)
+@given(bp=batches(lobby_only=True), k=st.integers(1, 5), limit=st.integers(1, 12))
+def test_sectors_from_floor_counts_equals_sectors_one_by_one(bp, k, limit):
+    """The lobby-only shortcut of `sectors` (runs per floor from the floor counts) gives
+    every passenger the car that the rule as stated (one passenger at a time, in
+    destination order) gives them, including when bands overflow into neighbours and
+    when every car is at its limit (not allocated, -1)."""
+    building, pairs = bp
+    assume(pairs)
+    group = replace(GROUP, cars=k)
+    o = np.array([p[0] for p in pairs], dtype=np.int64)
+    d = np.array([p[1] for p in pairs], dtype=np.int64)
+    params = get_rule("sectors").params(building, group, k, len(pairs) / k)
+    one_by_one = np.full(len(pairs), -7, np.int64)
+    by_counts = np.full(len(pairs), -7, np.int64)
+    sectors_in_order(o, d, k, limit, params, np.zeros(scratch_size(len(pairs), k), np.int64),
+                     one_by_one)
+    sectors_by_floor_counts(d, k, limit, params, np.zeros(scratch_size(len(pairs), k), np.int64),
+                            by_counts)
+    assert np.array_equal(one_by_one, by_counts)
+
+
+@settings(max_examples=80)
+@given(bp=batches(lobby_only=True), k=st.integers(1, 6))
+def test_sorted_from_floor_counts_equals_sorting_then_cutting(bp, k):
+    """The lobby-only shortcut of `sorted` (each passenger's rank counted from the floor
+    counts) gives every passenger the car of the rule as stated: sort the batch by
+    destination, stable in arrival order, and cut it into k equal groups."""
+    _, pairs = bp
+    o = np.zeros(len(pairs), np.int64)
+    d = np.array([p[1] for p in pairs], dtype=np.int64).reshape(-1)
+    order = np.empty(len(pairs), np.int64)
+    destination_order(o, d, order, np.zeros(scratch_size(len(pairs), k), np.int64))
+    as_stated = np.full(len(pairs), -7, np.int64)
+    equal_cut(order, len(pairs), k, as_stated)
+    by_counts = np.full(len(pairs), -7, np.int64)
+    equal_cut_by_destination(d, k, by_counts, np.zeros(scratch_size(len(pairs), k), np.int64))
+    assert np.array_equal(as_stated, by_counts)
+    # and the stable order is the one Python's stable sort gives
+    assert order.tolist() == sorted(range(len(pairs)), key=lambda i: d[i])
 
 
 @settings(max_examples=60)

@@ -1,7 +1,10 @@
 """`sorted`: destination grouping by sorting the batch on destination."""
 from __future__ import annotations
 
-from .ordering import all_at_lobby, destination_order, equal_cut, equal_cut_by_destination
+from numba import njit
+
+from .ordering import (all_at_lobby, cars_from_ranks, destination_order, equal_cut,
+                       lobby_rank_starts)
 from .registry import register
 
 
@@ -15,9 +18,26 @@ from .registry import register
            "destination control, from memory).")
 def allocate_sorted(origins, destinations, cars_open, car_limit, params, scratch, car_out):
     n = origins.shape[0]
-    if all_at_lobby(origins):             # up-peak: the same cut, found without sorting
-        equal_cut_by_destination(destinations, cars_open, car_out, scratch)
+    if all_at_lobby(origins):
+        # up-peak: the same cut made on the ranks of the destination order, without
+        # building the order
+        sorted_at_lobby(destinations, cars_open, scratch, car_out)
         return
     order = scratch[:n]
     destination_order(origins, destinations, order, scratch[n:])
     equal_cut(order, n, cars_open, car_out)
+
+
+@njit(cache=True, inline="always")
+def sorted_at_lobby(destinations, cars_open, scratch, car_out):
+    """`sorted` for a batch boarding at the lobby: the equal cut of
+    :func:`allocation.ordering.equal_cut` is made on the ranks of the destination
+    order (:func:`allocation.ordering.lobby_rank_starts`), and each passenger reads
+    the car of their rank."""
+    n = destinations.shape[0]
+    top = lobby_rank_starts(destinations, scratch)
+    car_of_rank = scratch[top + 2:top + 2 + n]
+    for c in range(cars_open):
+        for r in range(c * n // cars_open, (c + 1) * n // cars_open):
+            car_of_rank[r] = c
+    cars_from_ranks(destinations, car_of_rank, scratch, car_out)

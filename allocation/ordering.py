@@ -87,23 +87,22 @@ def all_at_lobby(origins):
 
 
 @njit(cache=True, inline="always")
-def lobby_rank_starts(destinations, work):
-    """For a batch boarding at the lobby: where each floor's passengers start in
-    :func:`destination_order`.
+def lobby_rank_starts(destinations, start):
+    """Where each floor's passengers start in :func:`destination_order` when every
+    passenger boards at the lobby (see :func:`all_at_lobby`).
 
     With every origin at the lobby the stable destination order puts the
     passengers for floor f at ranks start_f, start_f + 1, ... in arrival order,
     start_f being the number bound for floors below f. Writes start_f into
-    ``work[f]`` for f = 0 ... top + 1 (``work[top + 1]`` = n) and returns top,
-    the highest destination. ``work`` needs top + 2 entries.
+    ``start[f]`` for f = 0 ... top + 1 (``start[top + 1]`` = n) and returns top,
+    the highest destination. ``start`` needs top + 2 entries (at most 65).
     """
-    n = destinations.shape[0]
     top = 0
-    for i in range(n):
+    for i in range(destinations.shape[0]):
         top = max(top, destinations[i])
-    start = work[:top + 2]
-    start[:] = 0
-    for i in range(n):
+    for f in range(top + 2):
+        start[f] = 0
+    for i in range(destinations.shape[0]):
         start[destinations[i] + 1] += 1
     for f in range(1, top + 2):
         start[f] += start[f - 1]
@@ -118,22 +117,6 @@ def cars_from_ranks(destinations, car_of_rank, next_rank, car_out):
         d = destinations[i]
         car_out[i] = car_of_rank[next_rank[d]]
         next_rank[d] += 1
-
-
-@njit(cache=True, inline="always")
-def equal_cut_by_destination(destinations, cars, car_out, work):
-    """:func:`destination_order` then :func:`equal_cut`, for a batch boarding at the
-    lobby, without building the order: the equal cut is made on the ranks and each
-    passenger reads the car of their rank. ``work`` needs n + floors + 2 entries."""
-    n = destinations.shape[0]
-    if n == 0:
-        return
-    top = lobby_rank_starts(destinations, work)
-    car_of_rank = work[top + 2:top + 2 + n]
-    for c in range(cars):
-        for r in range(c * n // cars, (c + 1) * n // cars):
-            car_of_rank[r] = c
-    cars_from_ranks(destinations, car_of_rank, work[:top + 2], car_out)
 
 
 @njit(cache=True)

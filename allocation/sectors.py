@@ -107,9 +107,8 @@ def allocate_sectors(origins, destinations, cars_open, car_limit, params, scratc
     When every passenger boards at the lobby the destination order is by floor
     alone, and the same allocation is found from the floor counts (see
     :func:`sectors_by_floor_counts`) without sorting the passengers."""
-    if origins.shape[0] > 0 and all_at_lobby(origins):
-        sectors_by_floor_counts(destinations, cars_open, car_limit, params, scratch, car_out)
-    else:
+    if not sectors_by_floor_counts(origins, destinations, cars_open, car_limit, params,
+                                   scratch, car_out):
         sectors_in_order(origins, destinations, cars_open, car_limit, params, scratch, car_out)
 
 
@@ -151,34 +150,46 @@ def sectors_in_order(origins, destinations, cars_open, car_limit, params, scratc
 
 
 @njit(cache=True, inline="always")
-def sectors_by_floor_counts(destinations, cars_open, car_limit, params, scratch, car_out):
-    """The same allocation as :func:`sectors_in_order` for a batch boarding at the lobby.
+def sectors_by_floor_counts(origins, destinations, cars_open, car_limit, params, scratch,
+                            car_out):
+    """The same allocation as :func:`sectors_in_order`, for a batch boarding at the
+    lobby; returns False, having written nothing to ``car_out``, for any other batch.
 
-    In destination order the passengers for one floor come together, in arrival
-    order, and all search the cars in the same order; loads only grow, so they
-    fill one car, then the next. The floors are therefore walked once with their
-    counts, giving each run of ranks in the destination order its car, and each
-    passenger then reads the car of their rank (as :func:`equal_cut_by_destination`).
+    With every origin at the lobby the destination order is by floor alone, so the
+    passengers of one band are consecutive in it (:func:`allocation.ordering.
+    lobby_rank_starts` gives where each floor starts), and all of them search the
+    cars in the same order from the band's car. Loads only grow, so in that order
+    they fill one car, then the next: each band is one or a few runs of ranks. The
+    bands are walked once giving each run of ranks its car, and each passenger then
+    reads the car of their rank, counted on the fly in arrival order.
     """
     n = destinations.shape[0]
+    if n == 0 or not all_at_lobby(origins):
+        return False
     top = lobby_rank_starts(destinations, scratch)
-    start = scratch[:top + 2]
-    load = scratch[top + 2:top + 2 + cars_open]
-    car_of_rank = scratch[top + 2 + cars_open:top + 2 + cars_open + n]
-    load[:] = 0
-    for f in range(1, top + 1):
-        r = start[f]
-        left = start[f + 1] - r
-        if left == 0:
-            continue
+    w = top + 2
+    start = scratch[:w]
+    load = scratch[w:w + cars_open]
+    car_of_rank = scratch[w + cars_open:w + cars_open + n]
+    for c in range(cars_open):
+        load[c] = 0
+    rank = 0
+    f = 1
+    while f <= top:
         home = _home_car(f, cars_open, params)
+        g = f                                 # the band's floors f ... g (up to top)
+        while g < top and _home_car(g + 1, cars_open, params) == home:
+            g += 1
+        left = start[g + 1] - start[f]
         while left > 0:
             car = _nearest_with_room(home, cars_open, car_limit, load)
             take = left if car < 0 else min(left, car_limit - load[car])
-            for j in range(r, r + take):
-                car_of_rank[j] = car
-            r += take
+            for r in range(rank, rank + take):
+                car_of_rank[r] = car
+            rank += take
             left -= take
             if car >= 0:
                 load[car] += take
+        f = g + 1
     cars_from_ranks(destinations, car_of_rank, start, car_out)
+    return True

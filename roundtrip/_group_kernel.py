@@ -21,6 +21,10 @@ from numba import njit, prange
 
 from ._trip_kernel import _sample_cells, car_trip, lobby_trip_of_mask
 
+RULE_SCRATCH_FIXED = 4 * 66 + 2
+"""Working space a rule gets beyond 4 entries per passenger and 4 per car (see
+:func:`allocation.registry.scratch_size`)."""
+
 
 @njit(cache=True)
 def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
@@ -36,7 +40,7 @@ def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, c
     o_car = np.empty(longest, np.int64)
     d_car = np.empty(longest, np.int64)
     start = np.empty(cars_open + 1, np.int64)
-    scratch = np.empty(4 * longest + 4 * cars_open + 130, np.int64)
+    scratch = np.empty(4 * longest + 4 * cars_open + RULE_SCRATCH_FIXED, np.int64)
     order = np.empty(longest, np.int64)
     alight = np.empty(n_levels, np.int64)
     mask = np.empty(1, np.uint64)

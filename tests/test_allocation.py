@@ -13,7 +13,7 @@ import pytest
 from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
-from allocation.ordering import destination_order, equal_cut, equal_cut_by_destination
+from allocation.ordering import destination_order, equal_cut
 from allocation.registry import RULES, car_limit, get_rule, scratch_size
 from allocation.sectors import (band_round_trip_s, floor_bands, sectors_by_floor_counts,
                                 sectors_in_order)
@@ -152,7 +152,7 @@ def test_grouping_rules_ignore_the_listing_order(bp, k, rule, perm_seed):
 @settings(max_examples=80)
 @given(bp=batches(lobby_only=True), k=st.integers(1, 5), limit=st.integers(1, 12))
 def test_sectors_from_floor_counts_equals_sectors_one_by_one(bp, k, limit):
-    """The lobby-only shortcut of `sectors` (runs per floor from the floor counts) gives
+    """The lobby-only shortcut of `sectors` (runs of ranks per band from the floor counts) gives
     every passenger the car that the rule as stated (one passenger at a time, in
     destination order) gives them, including when bands overflow into neighbours and
     when every car is at its limit (not allocated, -1)."""
@@ -166,9 +166,11 @@ def test_sectors_from_floor_counts_equals_sectors_one_by_one(bp, k, limit):
     by_counts = np.full(len(pairs), -7, np.int64)
     sectors_in_order(o, d, k, limit, params, np.zeros(scratch_size(len(pairs), k), np.int64),
                      one_by_one)
-    sectors_by_floor_counts(d, k, limit, params, np.zeros(scratch_size(len(pairs), k), np.int64),
-                            by_counts)
+    done = sectors_by_floor_counts(o, d, k, limit, params,
+                                   np.zeros(scratch_size(len(pairs), k), np.int64), by_counts)
+    assert done
     assert np.array_equal(one_by_one, by_counts)
+    assert np.array_equal(get_rule("sectors").allocate(o, d, k, limit, params), one_by_one)
 
 
 @settings(max_examples=80)
@@ -184,8 +186,7 @@ def test_sorted_from_floor_counts_equals_sorting_then_cutting(bp, k):
     destination_order(o, d, order, np.zeros(scratch_size(len(pairs), k), np.int64))
     as_stated = np.full(len(pairs), -7, np.int64)
     equal_cut(order, len(pairs), k, as_stated)
-    by_counts = np.full(len(pairs), -7, np.int64)
-    equal_cut_by_destination(d, k, by_counts, np.zeros(scratch_size(len(pairs), k), np.int64))
+    by_counts = get_rule("sorted").allocate(o, d, k, car_limit(len(pairs), k, 99))
     assert np.array_equal(as_stated, by_counts)
     # and the stable order is the one Python's stable sort gives
     assert order.tolist() == sorted(range(len(pairs)), key=lambda i: d[i])

@@ -20,6 +20,7 @@ import numpy as np
 from numba import njit, prange
 
 from ._trip_kernel import _sample_cells, car_trip, lobby_trip_of_mask
+from ._views import borrowed
 
 RULE_SCRATCH_FIXED = 4 * 66 + 2
 """Working space a rule gets beyond 4 entries per passenger and 4 per car (see
@@ -27,20 +28,36 @@ RULE_SCRATCH_FIXED = 4 * 66 + 2
 
 
 @njit(cache=True)
-def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
-                 cell_dest, n_cars, cars_open, rated_load, params, flight_s, stop_overhead_s,
-                 transfer_in_s, transfer_out_s, rtt_out, counts_out, unallocated_out):
-    n_levels = flight_s.shape[0]
+def _longest_batch(offsets, first, last):
     longest = 1
     for t in range(first, last):
         longest = max(longest, offsets[t + 1] - offsets[t])
-    orig = np.empty(longest, np.int64)
-    dest = np.empty(longest, np.int64)
-    car_of = np.empty(longest, np.int64)
+    return longest
+
+
+@njit(cache=True, inline="always")
+def _rule_work_size(longest, cars_open):
+    """The block's passengers (origins, destinations, cars) and the rule's scratch."""
+    return 3 * longest + 4 * longest + 4 * cars_open + RULE_SCRATCH_FIXED
+
+
+@njit(cache=True)
+def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
+                 cell_dest, n_cars, cars_open, rated_load, params, flight_s, stop_overhead_s,
+                 transfer_in_s, transfer_out_s, rtt_out, counts_out, unallocated_out,
+                 longest, rule_work):
+    n_levels = flight_s.shape[0]
+    # What the rule is given is borrowed (not reference counted, see roundtrip._views)
+    # from ``rule_work`` and ``params``: arguments, which the caller keeps alive.
+    work = borrowed(rule_work)
+    orig = work[:longest]
+    dest = work[longest:2 * longest]
+    car_of = work[2 * longest:3 * longest]
+    scratch = work[3 * longest:]
+    rule_params = borrowed(params)
     o_car = np.empty(longest, np.int64)
     d_car = np.empty(longest, np.int64)
     start = np.empty(cars_open + 1, np.int64)
-    scratch = np.empty(4 * longest + 4 * cars_open + RULE_SCRATCH_FIXED, np.int64)
     order = np.empty(longest, np.int64)
     alight = np.empty(n_levels, np.int64)
     mask = np.empty(1, np.uint64)
@@ -62,7 +79,8 @@ def _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, c
             unallocated += m - fits
             limit = min(rated_load, (fits + k - 1) // k)
             car_of[:fits] = -1
-            rule(orig[a:a + fits], dest[a:a + fits], k, limit, params[k], scratch, car_of[:fits])
+            rule(orig[a:a + fits], dest[a:a + fits], k, limit, rule_params[k], scratch,
+                 car_of[:fits])
             # One pass in arrival order: each car's passenger count, and, while all its
             # passengers board at the lobby, the stop mask of the first rated-load of them
             # (those who board, as in the one-car model's up-peak path).
@@ -127,7 +145,9 @@ def group_trips(rule, uniforms, offsets, alias_prob, alias_cell, cell_origin, ce
     for b in prange(n_blocks):
         first = b * n_trials // n_blocks
         last = (b + 1) * n_trials // n_blocks
+        longest = _longest_batch(offsets, first, last)
+        rule_work = np.empty(_rule_work_size(longest, cars_open), np.int64)
         _group_block(rule, uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
                      cell_dest, n_cars, cars_open, rated_load, params, flight_s,
                      stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out, counts_out,
-                     unallocated_out)
+                     unallocated_out, longest, rule_work)

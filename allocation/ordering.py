@@ -22,22 +22,12 @@ def destination_order(origins, destinations, order_out, work):
     n = origins.shape[0]
     if n == 0:
         return
-    above = 0                             # any origin above the lobby (OR of the origins)
-    top = 0
-    for i in range(n):
-        above |= origins[i]
-        top = max(top, destinations[i])
-    if above == 0:                        # up-peak: the destination is the whole key
-        count = work[:top + 2]
-        count[:] = 0
-        for i in range(n):
-            count[destinations[i] + 1] += 1
-        for k in range(1, top + 2):
-            count[k] += count[k - 1]
+    if all_at_lobby(origins):             # up-peak: the destination is the whole key
+        lobby_rank_starts(destinations, work)
         for i in range(n):
             d = destinations[i]
-            order_out[count[d]] = i
-            count[d] += 1
+            order_out[work[d]] = i
+            work[d] += 1
         return
     levels = 1
     for i in range(n):

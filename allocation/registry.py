@@ -115,7 +115,7 @@ def register(name: str, *, summary: str, source: str, prepare: Callable | None =
 
 
 def scratch_size(batch: int, cars_open: int) -> int:
-    """Entries of the working space a rule is given: 4 n + 4 cars + 4 x 66 + 2."""
+    """Entries of the working space a rule is given: 4 n + 4 cars + 2 x 64 + 2."""
     from roundtrip._group_kernel import RULE_SCRATCH_FIXED
     return 4 * batch + 4 * cars_open + RULE_SCRATCH_FIXED
 

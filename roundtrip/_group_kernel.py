@@ -22,7 +22,7 @@ from numba import njit, prange
 from ._trip_kernel import _sample_cells, car_trip, lobby_trip_of_mask
 from ._views import borrowed
 
-RULE_SCRATCH_FIXED = 4 * 66 + 2
+RULE_SCRATCH_FIXED = 2 * 64 + 2
 """Working space a rule gets beyond 4 entries per passenger and 4 per car (see
 :func:`allocation.registry.scratch_size`)."""
 

@@ -11,11 +11,14 @@ from .registry import register
             "rises least. No car takes more than its equal share of the batch, so all "
             "leave with similar loads.",
     source="Greedy stop-minimising hall-call allocation, the simplest destination-control "
-           "heuristic (common practice).")
-def allocate_fewest_stops(origins, destinations, cars_open, car_limit, params, scratch, car_out):
+           "heuristic (common practice).",
+    default=True, peak=True)
+def allocate_fewest_stops(origins, destinations, cars, timing, table, scratch, car_out):
     """New stops of a passenger in a car: their origin (the lobby is always a stop) and
-    destination floors that the car does not yet serve in the passenger's direction.
-    A car is open to a passenger while it has fewer than ``car_limit``.
+    destination floors that the car does not yet serve in the passenger's direction,
+    counting the stops it is already due to make (the car view's masks). A car is
+    open to a passenger while it has room; its load is what is committed to it plus
+    what it takes from this batch.
 
     Ties go to the lighter car before the smaller rise of the reversal floor: the
     other order lets a loaded car win every tie against an empty one (an empty
@@ -23,34 +26,46 @@ def allocate_fewest_stops(origins, destinations, cars_open, car_limit, params, s
     in arrival order and the rule collapses into conventional control.
     """
     n = origins.shape[0]
-    up = scratch[0:cars_open]                 # stop masks, bit f for floor f
-    down = scratch[cars_open:2 * cars_open]
-    top = scratch[2 * cars_open:3 * cars_open]
-    load = scratch[3 * cars_open:4 * cars_open]
-    scratch[:4 * cars_open] = 0
+    k = cars.shape[0]
+    # car c's up and down stop masks (bit f for floor f), highest floor, load (committed
+    # plus taken from this batch) and room left, at scratch[UP + c] ... (offsets, not slices)
+    UP, DOWN, TOP, LOAD, LEFT = 0, k, 2 * k, 3 * k, 4 * k
     one = 1
+    for c in range(k):
+        scratch[UP + c] = cars[c]["up_stops"]
+        scratch[DOWN + c] = cars[c]["down_stops"]
+        scratch[TOP + c] = 0
+        both = scratch[UP + c] | scratch[DOWN + c]
+        if both != 0:                 # the highest floor it is due to stop at
+            for f in range(64):
+                if (both >> f) & one:
+                    scratch[TOP + c] = f
+        scratch[LOAD + c] = cars[c]["load"]
+        scratch[LEFT + c] = cars[c]["room"]
     for i in range(n):
         o, d = origins[i], destinations[i]
         best, best_new, best_rise, best_load = -1, 3, 1 << 30, 1 << 30
-        for c in range(cars_open):
-            if load[c] >= car_limit:
+        for c in range(k):
+            if scratch[LEFT + c] <= 0:
                 continue
-            mask = up[c] if d > o else down[c]
+            mask = scratch[UP + c] if d > o else scratch[DOWN + c]
             new = 0
             if o != 0 and not (mask >> o) & one:
                 new += 1
             if d != 0 and not (mask >> d) & one:
                 new += 1
-            rise = max(0, max(o, d) - top[c])
-            if (new < best_new or (new == best_new and load[c] < best_load)
-                    or (new == best_new and load[c] == best_load and rise < best_rise)):
-                best, best_new, best_rise, best_load = c, new, rise, load[c]
+            rise = max(0, max(o, d) - scratch[TOP + c])
+            load = scratch[LOAD + c]
+            if (new < best_new or (new == best_new and load < best_load)
+                    or (new == best_new and load == best_load and rise < best_rise)):
+                best, best_new, best_rise, best_load = c, new, rise, load
         car_out[i] = best
         if best >= 0:
             bits = (one << o) | (one << d)
             if d > o:
-                up[best] |= bits
+                scratch[UP + best] |= bits
             else:
-                down[best] |= bits
-            top[best] = max(top[best], max(o, d))
-            load[best] += 1
+                scratch[DOWN + best] |= bits
+            scratch[TOP + best] = max(scratch[TOP + best], max(o, d))
+            scratch[LOAD + best] += 1
+            scratch[LEFT + best] -= 1

@@ -1,7 +1,10 @@
 """Shared building blocks of the rules: a stable destination order and equal cuts.
 
-Both are numba-compatible functions compiled once (``njit``), callable from a
-rule's body in the kernel and from plain Python alike.
+All are numba-compatible functions compiled once (``njit``), callable from a
+rule's body in the kernel and from plain Python alike. Those on the hot
+up-peak path take the rule's whole working array and an offset into it rather
+than a slice of it: a slice of a reference-counted array costs an atomic
+count at every use, a dozen of which would be a fifth of a batch's time.
 """
 from __future__ import annotations
 
@@ -100,13 +103,84 @@ def lobby_rank_starts(destinations, start):
 
 
 @njit(cache=True, inline="always")
-def cars_from_ranks(destinations, car_of_rank, next_rank, car_out):
-    """Each passenger's car is the car of their rank in the destination order, counted
-    on the fly from ``next_rank`` (the starts of :func:`lobby_rank_starts`, used up)."""
+def cars_from_ranks(destinations, work, rank_base, car_out):
+    """Each passenger's car is the car of their rank in the destination order: the car of
+    rank r is ``work[rank_base + r]``, and each passenger's rank is counted on the fly
+    from the floor starts ``work[0 ...]`` of :func:`lobby_rank_starts` (used up)."""
     for i in range(destinations.shape[0]):
         d = destinations[i]
-        car_out[i] = car_of_rank[next_rank[d]]
-        next_rank[d] += 1
+        car_out[i] = work[rank_base + work[d]]
+        work[d] += 1
+
+
+@njit(cache=True, inline="always")
+def capped_sizes(n, cars, work, base):
+    """How many of n passengers each car takes in an equal cut capped by its room.
+
+    First the equal cut: car c takes floor((c + 1) n / k) - floor(c n / k) (sizes
+    differ by at most one, as :func:`equal_cut`). A car given more than its
+    ``room`` keeps its room, and what it gives up is cut equally again among the
+    cars that still have room, until everyone is placed or every car is full.
+    With every room at least ceil(n / k) this is :func:`equal_cut` exactly.
+    Writes car c's size into ``work[base + c]``; returns the passengers placed (n, or
+    the total room).
+    """
+    k = cars.shape[0]
+    excess = 0
+    below = 0
+    for c in range(k):
+        upto = (c + 1) * n // k
+        size = upto - below
+        below = upto
+        room = cars[c]["room"]
+        if size > room:
+            excess += size - room
+            size = room
+        work[base + c] = size
+    if excess > 0:
+        return _spread_excess(excess, n, cars, work[base:base + k])
+    return n
+
+
+@njit(cache=True)
+def _spread_excess(excess, n, cars, sizes):
+    """The rest of :func:`capped_sizes`: cut ``excess`` equally among the cars with room
+    left, again and again, until it is placed or every car is full."""
+    k = cars.shape[0]
+    while excess > 0:
+        spare = 0
+        for c in range(k):
+            if sizes[c] < cars[c]["room"]:
+                spare += 1
+        if spare == 0:
+            break
+        j = 0
+        given = 0
+        for c in range(k):
+            room = cars[c]["room"]
+            if sizes[c] < room:
+                share = (j + 1) * excess // spare - j * excess // spare
+                j += 1
+                add = min(share, room - sizes[c])
+                sizes[c] += add
+                given += add
+        excess -= given
+    return n - excess
+
+
+@njit(cache=True)
+def capped_cut(order, n, cars, sizes, car_out):
+    """Give the passengers order[0 .. n-1] to the cars in consecutive groups of the
+    sizes :func:`capped_sizes` finds (``sizes`` is its working space, one entry per
+    car); any passenger beyond every car's room gets -1."""
+    capped_sizes(n, cars, sizes, 0)
+    r = 0
+    for c in range(cars.shape[0]):
+        for _ in range(sizes[c]):
+            car_out[order[r]] = c
+            r += 1
+    for q in range(r, n):
+        car_out[order[q]] = -1
 
 
 @njit(cache=True)

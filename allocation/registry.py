@@ -1,46 +1,65 @@
-"""The registry of allocation rules: one entry per rule, registered once.
+"""The registry of allocation rules and policies: one entry each, registered once.
 
-A rule is a plain function with the fixed signature::
+A batch rule registers with :func:`register`, an immediate policy with
+:func:`register_policy`; the function signatures are those of
+:mod:`allocation.contract`. The registry drives the command line's choices,
+the documentation table (``docs/rules.md``) and the tests, and it declares,
+once, which rule is the conventional baseline and which rules run by default
+(flags on the entry, never lists spelled out elsewhere).
 
-    rule(origins, destinations, cars_open, car_limit, params, scratch, car_out) -> None
-
-origins, destinations : int64 arrays, one entry per passenger of the batch, in
-    arrival order (floor 0 is the lobby)
-cars_open : int, the cars open to this batch, numbered 0 ... cars_open - 1
-car_limit : int, the most passengers one car may take from this batch [persons]:
-    the rated load, or the car's equal share ceil(n / cars_open) of the batch
-    when that is smaller, so that every rule compares at the same car load
-params : float64 array, the rule's own table made once per run by its
-    ``prepare`` hook (zeros when the rule has none)
-scratch : int64 array, working space the rule may overwrite, at least
-    :func:`scratch_size` (n, cars_open) entries (so that a rule inside the kernel
-    need not allocate memory for every batch)
-car_out : int64 array, written by the rule: each passenger's car, or -1 when
-    no car can take them
-
-The engine only gives a rule a batch that fits (at most cars_open x rated
-load passengers; later arrivals beyond that are left behind in arrival order),
-so every passenger can be placed and -1 is for rules that choose to refuse. The function body is numba-compatible
-Python: :func:`register` compiles it once (numba ``cfunc`` with this fixed
-signature, cached on disk) so that the Monte Carlo kernel calls it, and keeps
-the plain function for tests and diagrams.
+Each function is compiled once, on first use, into a ``numba.cfunc`` (cached
+on disk) so that one compiled engine kernel serves every rule; the plain
+function stays available for tests and diagrams (:meth:`Rule.allocate`,
+:meth:`Policy.choose`).
 """
 from __future__ import annotations
 
 import difflib
 import functools
+import hashlib
+import importlib
+import marshal
+import re
 from dataclasses import dataclass
-from typing import Callable
+from typing import Callable, NamedTuple
 
 import numpy as np
 
-RULE_SIGNATURE_TEXT = ("void(int64[::1], int64[::1], int64, int64, float64[::1], int64[::1], "
-                       "int64[::1])")
+from roundtrip.schedule import TripTiming, trip_timing
+
+from .contract import CAR_VIEW, car_limit, empty_cars, scratch_size
+
+__all__ = ["Rule", "Policy", "RuleParams", "RULES", "POLICIES", "register", "register_policy",
+           "get_rule", "get_policy", "rule_names", "policy_names", "baseline_rule",
+           "default_rules", "peak_controls", "car_limit", "scratch_size"]
+
+
+class RuleParams(NamedTuple):
+    """What a rule is given besides the batch and the cars: its table and the timing."""
+
+    table: np.ndarray          # int64, rows 0 ... cars (row k for k cars open)
+    timing: TripTiming
+
+
+def _digest(function: Callable) -> str:
+    """A short digest of a function's code, so that an edited rule gets a fresh cache entry."""
+    return hashlib.sha1(marshal.dumps(function.__code__)).hexdigest()[:12]
+
+
+def _table(prepare, building, group, sizes, passengers_per_car) -> np.ndarray:
+    """Row k: the rule's prepared table for k cars open (the sizes a run uses)."""
+    rows = {k: np.asarray(prepare(building, group, k, passengers_per_car), dtype=np.int64)
+            for k in sorted(set(int(k) for k in sizes))} if prepare is not None else {}
+    width = max([r.size for r in rows.values()] + [1])
+    table = np.zeros((max(int(k) for k in sizes) + 1 if len(sizes) else 1, width), dtype=np.int64)
+    for k, r in rows.items():
+        table[k, :r.size] = r
+    return table
 
 
 @dataclass(frozen=True)
 class Rule:
-    """A registered allocation rule.
+    """A registered batch rule.
 
     Attributes
     ----------
@@ -51,14 +70,22 @@ class Rule:
     source : str
         Its source or rationale.
     function : callable
-        The plain Python function (runs anywhere numpy runs).
-    compiled : object
-        The same function compiled for the Monte Carlo kernel (on first use,
-        from numba's on-disk cache when it is warm).
+        The plain Python function for one batch (runs anywhere numpy runs).
     prepare : callable or None
-        ``prepare(building, group, cars_open, passengers_per_car) -> float64 array``.
+        ``prepare(building, group, cars_open, passengers_per_car) -> int64 array``:
+        the rule's table for ``cars_open`` cars, made once per run.
     max_batch : int or None
         Largest batch the rule accepts (exhaustive rules), None for any.
+    baseline : bool
+        The conventional baseline every gain is measured against (one rule).
+    default : bool
+        Run by default by the round-trip commands.
+    peak : bool
+        Offered by default as a delayed-allocation control of the peak simulation.
+    allocates : bool
+        The rule allocates arrays (an exhaustive search); every other rule works in
+        the scratch it is given and is compiled without the reference-counting
+        runtime (see :func:`_compiled`).
     """
 
     name: str
@@ -67,77 +94,211 @@ class Rule:
     function: Callable
     prepare: Callable | None = None
     max_batch: int | None = None
+    baseline: bool = False
+    default: bool = False
+    peak: bool = False
+    allocates: bool = False
+    kind = "batch rule"
 
     @functools.cached_property
     def compiled(self):
-        return _compile(self.function)
+        """The compiled batch driver: many batches per call (see the contract)."""
+        return _compile_batch_rule(self.name, self.function, self.allocates)
 
-    def params(self, building, group, cars_open: int, passengers_per_car: float) -> np.ndarray:
-        if self.prepare is None:
-            return np.zeros(1)
-        return np.ascontiguousarray(self.prepare(building, group, cars_open, passengers_per_car),
-                                    dtype=np.float64)
+    def table(self, building, group, sizes, passengers_per_car: float) -> np.ndarray:
+        """The rule's table with a row for each number of cars open in ``sizes``."""
+        return _table(self.prepare, building, group, list(sizes), passengers_per_car)
 
-    def allocate(self, origins, destinations, cars_open: int, car_limit: int,
-                 params: np.ndarray | None = None) -> np.ndarray:
-        """Run the plain function on one batch; returns each passenger's car (or -1)."""
-        o = np.ascontiguousarray(origins, dtype=np.int64)
-        d = np.ascontiguousarray(destinations, dtype=np.int64)
+    def params(self, building, group, cars_open: int, passengers_per_car: float) -> RuleParams:
+        """Table (row ``cars_open``) and timing for plain calls of :meth:`allocate`."""
+        return RuleParams(self.table(building, group, [cars_open], passengers_per_car),
+                          trip_timing(building, group))
+
+    def allocate(self, origins, destinations, cars_open: int, car_limit: int | None = None,
+                 params: RuleParams | None = None, cars: np.ndarray | None = None) -> np.ndarray:
+        """Run the plain function on one batch; returns each passenger's car (or -1).
+
+        The cars are ``cars`` (a :data:`~allocation.contract.CAR_VIEW` array), or
+        ``cars_open`` empty cars each with room ``car_limit``.
+        """
+        o = np.ascontiguousarray(origins, dtype=np.int64).reshape(-1)
+        d = np.ascontiguousarray(destinations, dtype=np.int64).reshape(-1)
+        if cars is None:
+            cars = empty_cars(cars_open, o.size if car_limit is None else car_limit)
+        k = cars.shape[0]
+        if params is None:
+            params = RuleParams(np.zeros((k + 1, 1), dtype=np.int64), _NO_TIMING)
         out = np.full(o.size, -1, dtype=np.int64)
-        p = np.zeros(1) if params is None else np.ascontiguousarray(params, dtype=np.float64)
-        scratch = np.zeros(scratch_size(o.size, int(cars_open)), dtype=np.int64)
-        self.function(o, d, int(cars_open), int(car_limit), p, scratch, out)
+        scratch = np.zeros(scratch_size(o.size, k), dtype=np.int64)
+        self.function(o, d, cars, params.timing, params.table, scratch, out)
         return out
 
 
+@dataclass(frozen=True)
+class Policy:
+    """A registered immediate policy (see :mod:`allocation.contract`)."""
+
+    name: str
+    summary: str
+    source: str
+    function: Callable
+    prepare: Callable | None = None
+    peak: bool = True
+    kind = "immediate policy"
+    max_batch = None
+
+    @functools.cached_property
+    def compiled(self):
+        return _compile_policy(self.function)
+
+    def table(self, building, group, sizes, passengers_per_car: float) -> np.ndarray:
+        return _table(self.prepare, building, group, list(sizes), passengers_per_car)
+
+    def choose(self, origin: int, destination: int, cars: np.ndarray,
+               timing: TripTiming, table: np.ndarray | None = None) -> int:
+        """Run the plain function for one passenger; returns their car (or -1)."""
+        t = np.zeros((cars.shape[0] + 1, 1), dtype=np.int64) if table is None else table
+        return int(self.function(int(origin), int(destination), cars, timing, t))
+
+
+_NO_TIMING = TripTiming(np.zeros((1, 1)), 0.0, 0.0, 0.0, 0.0, 1 << 30)
+
 RULES: dict[str, Rule] = {}
+POLICIES: dict[str, Policy] = {}
 
 
-def _compile(function: Callable):
+def _compiled(signature, function: Callable, allocates: bool):
+    """``function`` as a ``numba.cfunc`` of ``signature``, cached on disk.
+
+    A rule that allocates nothing is compiled without numba's reference-counting
+    runtime: the compiler then refuses any allocation in it (so a rule can keep
+    nothing beyond the call), and the slices it takes of the engine's arrays cost
+    no atomic reference counts, which would otherwise be a sixth of a batch's time
+    (``python -m experiments.bench``). Should numba stop accepting that option, the
+    rule is compiled with the runtime, correct but slower.
+    """
+    from numba import cfunc
+    if not allocates:
+        try:
+            return cfunc(signature, cache=True, _nrt=False)(function)
+        except (KeyError, TypeError, ValueError):       # the option is gone: use the default
+            pass
+    return cfunc(signature, cache=True)(function)
+
+
+def _compile_batch_rule(name: str, function: Callable, allocates: bool):
+    import numba
+    from numba import njit
+
+    from .contract import BATCH_DRIVER_SIGNATURE
+    if numba.config.DISABLE_JIT:
+        inner = function
+    else:
+        inner = njit(inline="always", cache=True)(function)
+
+    def driver(batches, timing, table, scratch, car_out):
+        offsets = batches.offsets
+        for b in range(offsets.shape[0] - 1):
+            s = offsets[b]
+            e = offsets[b + 1]
+            inner(batches.origins[s:e], batches.destinations[s:e],
+                  batches.cars[batches.car_start[b]:batches.car_stop[b]], timing, table, scratch,
+                  car_out[s:e])
+
+    if numba.config.DISABLE_JIT:
+        return driver
+    # one cache entry per rule and per version of its code
+    driver.__name__ = driver.__qualname__ = (
+        f"batch_rule_{re.sub(r'[^0-9a-zA-Z]', '_', name)}_{_digest(function)}")
+    return _compiled(BATCH_DRIVER_SIGNATURE, driver, allocates)
+
+
+def _compile_policy(function: Callable):
     import numba
     if numba.config.DISABLE_JIT:
         return function
-    from numba import cfunc, types
-    sig = types.void(types.int64[::1], types.int64[::1], types.int64, types.int64,
-                     types.float64[::1], types.int64[::1], types.int64[::1])
-    return cfunc(sig, cache=True)(function)
+
+    from .contract import POLICY_SIGNATURE
+    return _compiled(POLICY_SIGNATURE, function, False)
+
+
+def _check_new(name: str) -> None:
+    if name in RULES or name in POLICIES or name == "conventional":
+        raise ValueError(f"allocation rule {name!r} is registered twice")
 
 
 def register(name: str, *, summary: str, source: str, prepare: Callable | None = None,
-             max_batch: int | None = None):
-    """Decorator: register ``function`` as the allocation rule ``name``."""
+             max_batch: int | None = None, baseline: bool = False, default: bool = False,
+             peak: bool = False, allocates: bool = False):
+    """Decorator: register ``function`` as the batch rule ``name``."""
     def wrap(function: Callable) -> Callable:
-        if name in RULES:
-            raise ValueError(f"allocation rule {name!r} is registered twice")
-        RULES[name] = Rule(name, summary, source, function, prepare, max_batch)
+        _check_new(name)
+        if baseline and any(r.baseline for r in RULES.values()):
+            raise ValueError(f"allocation rule {name!r}: a baseline rule is registered already")
+        RULES[name] = Rule(name, summary, source, function, prepare, max_batch, baseline,
+                           default, peak, allocates)
         return function
     return wrap
 
 
-def scratch_size(batch: int, cars_open: int) -> int:
-    """Entries of the working space a rule is given: 4 n + 4 cars + 2 x 64 + 2."""
-    from roundtrip._group_kernel import RULE_SCRATCH_FIXED
-    return 4 * batch + 4 * cars_open + RULE_SCRATCH_FIXED
+def register_policy(name: str, *, summary: str, source: str, prepare: Callable | None = None,
+                    peak: bool = True):
+    """Decorator: register ``function`` as the immediate policy ``name``."""
+    def wrap(function: Callable) -> Callable:
+        _check_new(name)
+        POLICIES[name] = Policy(name, summary, source, function, prepare, peak)
+        return function
+    return wrap
 
 
-def car_limit(batch: int, cars_open: int, rated_load_persons: int) -> int:
-    """The per-car limit the engine gives a rule: min(rated load, ceil(batch / cars open))."""
-    return min(rated_load_persons, -(-batch // cars_open))
+def _unknown(name: str, kind: str, choices) -> ValueError:
+    near = difflib.get_close_matches(name, list(choices), n=1, cutoff=0.5)
+    hint = f"; did you mean '{near[0]}'?" if near else ""
+    return ValueError(f"{name!r} is not a known {kind}{hint} (choices: {', '.join(choices)})")
 
 
 def get_rule(name: str) -> Rule:
-    """The rule called ``name``; a ValueError names the choices and the nearest one."""
+    """The batch rule called ``name``; a ValueError names the choices and the nearest one."""
     if name not in RULES:
-        near = difflib.get_close_matches(name, list(RULES), n=1, cutoff=0.5)
-        hint = f"; did you mean '{near[0]}'?" if near else ""
-        raise ValueError(f"rule = {name!r}: not a known allocation rule{hint} "
-                         f"(choices: {', '.join(RULES)})")
+        raise _unknown(name, "allocation rule", RULES)
     return RULES[name]
+
+
+def get_policy(name: str) -> Policy:
+    """The immediate policy called ``name``."""
+    if name not in POLICIES:
+        raise _unknown(name, "immediate allocation policy", POLICIES)
+    return POLICIES[name]
 
 
 def rule_names() -> list[str]:
     return list(RULES)
 
 
-# Importing the rule modules registers them, in the order shown to users.
-from . import conventional, grouped, sectors, fewest_stops, exhaustive, round_robin  # noqa: E402,F401
+def policy_names() -> list[str]:
+    return list(POLICIES)
+
+
+def baseline_rule() -> str:
+    """The name of the conventional baseline rule."""
+    return next(r.name for r in RULES.values() if r.baseline)
+
+
+def default_rules() -> list[str]:
+    """The rules the round-trip commands run by default, the baseline first."""
+    base = baseline_rule()
+    return [base] + [r.name for r in RULES.values() if r.default and r.name != base]
+
+
+def peak_controls() -> list[str]:
+    """The controls the peak simulation runs by default: conventional control, then the
+    batch rules for delayed allocation, then the immediate policies."""
+    return (["conventional"] + [r.name for r in RULES.values() if r.peak]
+            + [p.name for p in POLICIES.values() if p.peak])
+
+
+# Importing the rule modules registers them, in the order shown to users (each module is
+# named after its rule; imported by name so that `random` and `sorted` shadow nothing here).
+for _module in ("random", "sorted", "sectors", "fewest_stops", "best", "round_robin",
+                "earliest_leaving", "same_floor_first", "least_added_time"):
+    importlib.import_module(f"allocation.{_module}")

@@ -14,6 +14,19 @@ from .registry import register
     summary="Worked example: passengers are dealt to the cars in turn, like cards, with no "
             "regard to destination. It should perform like conventional control.",
     source="Worked example for contributors; a conventional rule by construction.")
-def allocate_round_robin(origins, destinations, cars_open, car_limit, params, scratch, car_out):
+def allocate_round_robin(origins, destinations, cars, timing, table, scratch, car_out):
+    """Passenger i goes to car i mod k, or the next car in turn that has room."""
+    k = cars.shape[0]
+    for c in range(k):
+        scratch[c] = 0                        # taken by car c
+    turn = 0                                  # i mod k
     for i in range(origins.shape[0]):
-        car_out[i] = i % cars_open
+        car_out[i] = -1
+        c = turn
+        for _ in range(k):
+            if scratch[c] < cars[c]["room"]:
+                car_out[i] = c
+                scratch[c] += 1
+                break
+            c = c + 1 if c + 1 < k else 0
+        turn = turn + 1 if turn + 1 < k else 0

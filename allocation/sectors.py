@@ -23,6 +23,9 @@ import math
 import numpy as np
 from numba import njit
 
+from roundtrip.classical import expected_stops_poisson, stop_time_s
+from roundtrip.kinematics import flight_time_s
+
 from .ordering import all_at_lobby, cars_from_ranks, destination_order, lobby_rank_starts
 from .registry import register
 
@@ -35,7 +38,7 @@ def band_round_trip_s(levels_m, populations, lo: int, hi: int, passengers: float
     if total <= 0 or passengers <= 0:
         return 2.0 * levels_m[lo] / rated_speed_mps + stop_time_s if passengers > 0 else 0.0
     share = u / total
-    stops = float(np.sum(-np.expm1(-passengers * share)))
+    stops = expected_stops_poisson(share, passengers)
     below = np.concatenate(([0.0], np.cumsum(share)[:-1]))         # F_{f-1} within the band
     reach = -np.expm1(-passengers * np.clip(1.0 - below, 0.0, 1.0))  # Pr(highest >= f)
     rises = np.diff(np.asarray(levels_m, dtype=float))[lo - 1:hi]   # level_f - level_{f-1}
@@ -45,8 +48,6 @@ def band_round_trip_s(levels_m, populations, lo: int, hi: int, passengers: float
 
 def floor_bands(building, group, cars_open: int, passengers_per_car: float):
     """The balanced bands: a list of (first floor, last floor), one per car (at most N)."""
-    from roundtrip.kinematics import flight_time_s
-
     N = building.floors
     k = min(cars_open, N)
     levels = building.levels_m
@@ -54,7 +55,8 @@ def floor_bands(building, group, cars_open: int, passengers_per_car: float):
     shares = pops / pops.sum()
     d_f = building.average_interfloor_height_m
     v = group.rated_speed_mps
-    t_s = flight_time_s(d_f, v, group.acceleration_mps2, group.jerk_mps3) - d_f / v + group.stop_overhead_s
+    t_s = stop_time_s(flight_time_s(d_f, v, group.acceleration_mps2, group.jerk_mps3), d_f / v,
+                      group.door_open_s, group.door_close_s, group.start_delay_s)
     batch = cars_open * max(passengers_per_car, 1e-9)
 
     cost = np.full((N + 2, N + 2), math.inf)
@@ -81,11 +83,12 @@ def floor_bands(building, group, cars_open: int, passengers_per_car: float):
 
 
 def prepare_sectors(building, group, cars_open, passengers_per_car):
-    """params[f] = car of floor f (floor 0, the lobby, goes with car 0)."""
-    params = np.zeros(building.floors + 1)
+    """The rule's table for ``cars_open`` cars: entry f is the car of floor f (floor 0,
+    the lobby, goes with car 0)."""
+    table = np.zeros(building.floors + 1, dtype=np.int64)
     for car, (lo, hi) in enumerate(floor_bands(building, group, cars_open, passengers_per_car)):
-        params[lo:hi + 1] = car
-    return params
+        table[lo:hi + 1] = car
+    return table
 
 
 @register(
@@ -96,100 +99,101 @@ def prepare_sectors(building, group, cars_open, passengers_per_car):
     source="Zoning of a lift group into floor bands (sectoring), a long-standing "
            "destination-control and up-peak technique (common practice); bands balanced by "
            "dynamic programming on the ISO 8100-32:2020 round-trip formula.",
-    prepare=prepare_sectors)
-def allocate_sectors(origins, destinations, cars_open, car_limit, params, scratch, car_out):
+    prepare=prepare_sectors, default=True, peak=True)
+def allocate_sectors(origins, destinations, cars, timing, table, scratch, car_out):
     """Each passenger's car is the band of their upper floor (destination going up,
-    origin going down). When a band's car has its limit (its equal share of the
-    batch), the passenger goes to the nearest band with room (the lower one on a
-    tie). Passengers are taken in destination order, so the result does not depend
-    on the order they are listed in.
+    origin going down), from row k of the table for k cars. When a band's car has
+    no room left, the passenger goes to the nearest band with room (the lower one
+    on a tie). Passengers are taken in destination order, so the result does not
+    depend on the order they are listed in.
 
     When every passenger boards at the lobby the destination order is by floor
     alone, and the same allocation is found from the floor counts (see
     :func:`sectors_by_floor_counts`) without sorting the passengers."""
-    if not sectors_by_floor_counts(origins, destinations, cars_open, car_limit, params,
-                                   scratch, car_out):
-        sectors_in_order(origins, destinations, cars_open, car_limit, params, scratch, car_out)
+    bands = table[cars.shape[0]]
+    if not sectors_by_floor_counts(origins, destinations, cars, bands, scratch, car_out):
+        sectors_in_order(origins, destinations, cars, bands, scratch, car_out)
 
 
 @njit(cache=True, inline="always")
-def _home_car(floor, cars_open, params):
+def _home_car(floor, cars_open, bands):
     """The car of the band ``floor`` lies in (the top car above the table)."""
-    home = int(params[floor]) if floor < params.shape[0] else cars_open - 1
+    home = bands[floor] if floor < bands.shape[0] else cars_open - 1
     return min(home, cars_open - 1)
 
 
 @njit(cache=True, inline="always")
-def _nearest_with_room(home, cars_open, car_limit, load):
-    """``home`` if it has room, else the nearest car with room (the lower on a tie), or -1."""
-    for step in range(cars_open):
+def _nearest_with_room(home, cars, work, taken):
+    """``home`` if it has room, else the nearest car with room (the lower on a tie), or -1;
+    car c has taken ``work[taken + c]`` of the batch so far."""
+    k = cars.shape[0]
+    for step in range(k):
         lower = home - step
         upper = home + step
-        if lower >= 0 and load[lower] < car_limit:
+        if lower >= 0 and work[taken + lower] < cars[lower]["room"]:
             return lower
-        if upper < cars_open and load[upper] < car_limit:
+        if upper < k and work[taken + upper] < cars[upper]["room"]:
             return upper
     return -1
 
 
 @njit(cache=True)
-def sectors_in_order(origins, destinations, cars_open, car_limit, params, scratch, car_out):
+def sectors_in_order(origins, destinations, cars, bands, scratch, car_out):
     """The rule as stated: passengers one by one in :func:`destination_order`."""
     n = origins.shape[0]
+    k = cars.shape[0]
     order = scratch[:n]
-    load = scratch[n:n + cars_open]
-    load[:] = 0
-    destination_order(origins, destinations, order, scratch[n + cars_open:])
+    for c in range(k):
+        scratch[n + c] = 0                    # taken by car c: scratch[n + c]
+    destination_order(origins, destinations, order, scratch[n + k:])
     for r in range(n):
         i = order[r]
         floor = destinations[i] if destinations[i] > origins[i] else origins[i]
-        car = _nearest_with_room(_home_car(floor, cars_open, params), cars_open, car_limit, load)
+        car = _nearest_with_room(_home_car(floor, k, bands), cars, scratch, n)
         car_out[i] = car
         if car >= 0:
-            load[car] += 1
+            scratch[n + car] += 1
 
 
 @njit(cache=True, inline="always")
-def sectors_by_floor_counts(origins, destinations, cars_open, car_limit, params, scratch,
-                            car_out):
+def sectors_by_floor_counts(origins, destinations, cars, bands, scratch, car_out):
     """The same allocation as :func:`sectors_in_order`, for a batch boarding at the
     lobby; returns False, having written nothing to ``car_out``, for any other batch.
 
     With every origin at the lobby the destination order is by floor alone, so the
     passengers of one band are consecutive in it (:func:`allocation.ordering.
     lobby_rank_starts` gives where each floor starts), and all of them search the
-    cars in the same order from the band's car. Loads only grow, so in that order
-    they fill one car, then the next: each band is one or a few runs of ranks. The
-    bands are walked once giving each run of ranks its car, and each passenger then
-    reads the car of their rank, counted on the fly in arrival order.
+    cars in the same order from the band's car. What each car takes only grows, so
+    in that order they fill one car, then the next: each band is one or a few runs
+    of ranks. The bands are walked once giving each run of ranks its car, and each
+    passenger then reads the car of their rank, counted on the fly in arrival order.
     """
     n = destinations.shape[0]
     if n == 0 or not all_at_lobby(origins):
         return False
-    top = lobby_rank_starts(destinations, scratch)
-    w = top + 2
-    start = scratch[:w]
-    load = scratch[w:w + cars_open]
-    car_of_rank = scratch[w + cars_open:w + cars_open + n]
-    for c in range(cars_open):
-        load[c] = 0
+    k = cars.shape[0]
+    top = lobby_rank_starts(destinations, scratch)   # floor starts: scratch[0 ... top + 1]
+    taken = top + 2                                   # taken by car c: scratch[taken + c]
+    ranks = taken + k                                 # car of rank r: scratch[ranks + r]
+    for c in range(k):
+        scratch[taken + c] = 0
     rank = 0
     f = 1
     while f <= top:
-        home = _home_car(f, cars_open, params)
+        home = _home_car(f, k, bands)
         g = f                                 # the band's floors f ... g (up to top)
-        while g < top and _home_car(g + 1, cars_open, params) == home:
+        while g < top and _home_car(g + 1, k, bands) == home:
             g += 1
-        left = start[g + 1] - start[f]
+        left = scratch[g + 1] - scratch[f]
         while left > 0:
-            car = _nearest_with_room(home, cars_open, car_limit, load)
-            take = left if car < 0 else min(left, car_limit - load[car])
+            car = _nearest_with_room(home, cars, scratch, taken)
+            take = left if car < 0 else min(left, cars[car]["room"] - scratch[taken + car])
             for r in range(rank, rank + take):
-                car_of_rank[r] = car
+                scratch[ranks + r] = car
             rank += take
             left -= take
             if car >= 0:
-                load[car] += take
+                scratch[taken + car] += take
         f = g + 1
-    cars_from_ranks(destinations, car_of_rank, start, car_out)
+    cars_from_ranks(destinations, scratch, ranks, car_out)
     return True

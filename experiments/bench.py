@@ -76,13 +76,13 @@ def numpy_baseline_trips(u, P, shares, flight_s, group):
     return flights + (stops + 1) * group.stop_overhead_s + P * (group.transfer_in_s + group.transfer_out_s)
 
 
-def kernel_trips(sampler, flight, group, u, offsets):
+def kernel_trips(sampler, timing, stream):
     """The kernel as simulate_trips runs it: passengers sampled from given uniforms and timed
     (for this up-peak case, the up-peak kernel)."""
     out = {}
 
     def run():
-        out["sample"] = sampler.sampled_trips(group, flight, u, offsets)
+        out["sample"] = sampler.sampled_trips(timing, stream)
     return run, out
 
 
@@ -91,32 +91,25 @@ def rule_figures(building, group, P, n_batches, bound):
     passenger sampling, allocation, timing of every car), and the fraction of the
     random-number bound."""
     from allocation.registry import RULES
-    from roundtrip import _group_kernel as G
-    from roundtrip import _trip_kernel as K
-    from roundtrip.group_montecarlo import _params_table
-    from roundtrip.montecarlo import PassengerSampler, flight_table_s
+    from batchrounds.montecarlo import group_sample
+    from roundtrip.montecarlo import PassengerSampler
+    from roundtrip.schedule import TripStream, trip_timing
 
     L = group.cars
     sampler = PassengerSampler(building)
-    flight = flight_table_s(building, group)
+    timing = trip_timing(building, group)
     u = np.random.default_rng(5).random(n_batches * L * P)
-    offsets = np.arange(0, u.size + 1, L * P, dtype=np.int64)
-    rtt = np.empty((n_batches, L))
-    counts = np.empty((n_batches, L, K.N_COUNTS), np.int64)
-    unalloc = np.empty(n_batches, np.int64)
+    stream = TripStream(u, np.arange(0, u.size + 1, L * P, dtype=np.int64))
     out = {}
     rng = np.random.Generator(np.random.PCG64(1))
     fresh = np.empty(u.size)
     for name, rule in RULES.items():
         if rule.max_batch is not None:
             continue
-        table = _params_table(rule, building, group, L, P)
+        table = rule.table(building, group, [L], P)
 
         def run():
-            G.group_trips(rule.compiled, u, offsets, sampler.alias_prob, sampler.alias_cell,
-                          sampler.cell_origin, sampler.cell_dest, L, L, group.rated_load_persons,
-                          table, flight, group.stop_overhead_s, group.transfer_in_s,
-                          group.transfer_out_s, 1, rtt, counts, unalloc)
+            group_sample(rule, table, sampler, timing, L, L, stream)
         run()
         # the rule and the random-number bound timed in turn, best of each, so that a
         # change in the machine's speed during the run moves both
@@ -152,7 +145,8 @@ def main(argv=None) -> dict:
 
     import numba
 
-    from roundtrip.montecarlo import PassengerSampler, flight_table_s, simulate_demand
+    from roundtrip.montecarlo import PassengerSampler, simulate_demand
+    from roundtrip.schedule import TripStream, trip_timing
 
     b, g, traffic = reference_case()
     P, n = REFERENCE_P, args.trials
@@ -166,26 +160,26 @@ def main(argv=None) -> dict:
     figures["uniforms_per_s"] = ups
     bound = ups / P
     sampler = PassengerSampler(b)
-    flight = flight_table_s(b, g)
+    timing = trip_timing(b, g)
     rng = np.random.default_rng(3)
     u = rng.random(n * P)
-    offsets = np.arange(0, n * P + 1, P, dtype=np.int64)
+    stream = TripStream(u, np.arange(0, n * P + 1, P, dtype=np.int64))
     threads = numba.config.NUMBA_NUM_THREADS
     for label, t in (("1_thread", 1), (f"{threads}_threads", threads)):
         numba.set_num_threads(t)
-        run, _ = kernel_trips(sampler, flight, g, u, offsets)
+        run, _ = kernel_trips(sampler, timing, stream)
         run()
         figures[f"kernel_trips_per_s_{label}"] = n / best_of(run)
     numba.set_num_threads(threads)
-    base = numpy_baseline_trips(u, P, b.population_shares, flight, g)
-    run1, out1 = kernel_trips(sampler, flight, g, u, offsets)
+    base = numpy_baseline_trips(u, P, b.population_shares, timing.flight_s, g)
+    run1, out1 = kernel_trips(sampler, timing, stream)
     run1()
     rtt1 = out1["sample"].rtt_s
     # the kernel samples by the alias method, the baseline by inversion: compare their means
     figures["baseline_mean_rtt_s"] = float(base.mean())
     figures["kernel_mean_rtt_s"] = float(rtt1.mean())
     figures["numpy_baseline_trips_per_s"] = n / best_of(
-        lambda: numpy_baseline_trips(u, P, b.population_shares, flight, g), 3)
+        lambda: numpy_baseline_trips(u, P, b.population_shares, timing.flight_s, g), 3)
     figures["fraction_of_rng_bound_1_thread"] = figures["kernel_trips_per_s_1_thread"] / bound
     figures["speedup_over_numpy_1_thread"] = (figures["kernel_trips_per_s_1_thread"]
                                               / figures["numpy_baseline_trips_per_s"])

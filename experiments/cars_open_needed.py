@@ -24,7 +24,9 @@ QUESTION = "How many cars must be open to allocation to get most of the gain?"
 def main(trials: int | None = None, seed: int = 2026, out_dir="liftsort-out/cars-open"):
     """Run the sweep, save gain_vs_cars_open.png/.svg and cars_open.csv; return the table."""
     from .charts import cars_open_chart
-    from .cli import demo_building_path
+    from allocation.registry import default_rules
+
+    from .data import demo_building_path
     from .outputs import output_dir, write_atomic
     from .sweep import demand_sweep
 
@@ -32,7 +34,7 @@ def main(trials: int | None = None, seed: int = 2026, out_dir="liftsort-out/cars
     out = output_dir(out_dir)
     cars = scenario.group.cars
     table = demand_sweep(scenario, [scenario.traffic.arrival_rate_pct_5min],
-                         ["random", "sorted", "sectors", "fewest-stops"],
+                         default_rules(),
                          cars_open_list=list(range(1, cars + 1)), trials=trials, seed=seed)
     write_atomic(out / "cars_open.csv", table.to_csv(index=False))
     return table, [Path(p) for p in cars_open_chart(table, out, scenario.building.name)]

@@ -31,7 +31,12 @@ import numpy as np
 from .outputs import output_dir, write_atomic
 
 DPI = 150
-BASELINE = "random"
+
+def _is_baseline(rule: str) -> bool:
+    """True for the registry's conventional baseline rule."""
+    from allocation.registry import baseline_rule
+    return rule == baseline_rule()
+
 DEMAND_LABEL = "demand [% of population per 5 min]"
 
 # Fixed rule -> index into seaborn's "colorblind" palette (None: the baseline's grey).
@@ -76,7 +81,7 @@ def _marker(rule: str) -> str:
 
 def _line_style(rule: str) -> dict:
     return {"color": rule_colour(rule), "marker": _marker(rule), "markersize": 4.5,
-            "linewidth": 1.8, "linestyle": "--" if rule == BASELINE else "-", "label": rule}
+            "linewidth": 1.8, "linestyle": "--" if _is_baseline(rule) else "-", "label": rule}
 
 
 @contextmanager
@@ -190,7 +195,7 @@ def _shade_saturated(ax, rows) -> None:
     first = float(sat.min())
     unsat = rows.loc[~flags, "arrival_rate_pct_5min"]
     start = first
-    base = rows.loc[rows["rule"] == BASELINE, "design_load_handling_capacity_pct_5min"]
+    base = rows.loc[rows["rule"].map(_is_baseline), "design_load_handling_capacity_pct_5min"]
     if len(base):
         last_ok = float(unsat[unsat < first].max()) if (unsat < first).any() else -math.inf
         start = min(max(float(base.iloc[0]), last_ok), first)
@@ -270,7 +275,7 @@ def _panels_vs_demand(groups, panels, title: str, stem: str, out_dir, *,
                     ax.axhline(0.0, color=_BASELINE_COLOUR, linewidth=1.0, linestyle="--",
                                label="conventional control (random)")
             for rule in _rules(rows):
-                if skip_baseline and rule == BASELINE:
+                if skip_baseline and _is_baseline(rule):
                     continue
                 r = rows[rows["rule"] == rule]
                 x = r["arrival_rate_pct_5min"]
@@ -314,7 +319,7 @@ def _capacity_chart(groups, out_dir, name) -> list[Path]:
                 colour = rule_colour(rule)
                 ax.plot([hc, hc], [low, hc], color=colour, linewidth=1.0, linestyle=":")
                 ax.plot([low, hc, high], [hc, hc, hc], color=colour, linewidth=1.8,
-                        linestyle="--" if rule == BASELINE else "-", marker=_marker(rule),
+                        linestyle="--" if _is_baseline(rule) else "-", marker=_marker(rule),
                         markevery=[1], markersize=8, markeredgecolor="white",
                         label=f"{rule}: carries up to {hc:.1f} %")
             ax.set_xlim(low, high)
@@ -382,7 +387,7 @@ def cars_open_chart(table, out_dir, building_name: str) -> list[Path]:
             ax.axhline(0.0, color=_BASELINE_COLOUR, linewidth=1.0, linestyle="--",
                        label="conventional control (random)")
             for rule in _rules(rows):
-                if rule == BASELINE:
+                if _is_baseline(rule):
                     continue
                 r = rows[rows["rule"] == rule].sort_values("cars_open")
                 x = r["cars_open"]
@@ -409,8 +414,8 @@ def distribution_charts(comparison, out_dir, building_name: str) -> list[Path]:
 
     Parameters
     ----------
-    comparison : roundtrip.group_montecarlo.Comparison
-        A run of :func:`roundtrip.group_montecarlo.compare_rules`; every car
+    comparison : batchrounds.montecarlo.Comparison
+        A run of :func:`batchrounds.montecarlo.compare_rules`; every car
         trip of every trial counts once.
     out_dir : path
         Output folder (created if needed).
@@ -428,7 +433,7 @@ def distribution_charts(comparison, out_dir, building_name: str) -> list[Path]:
     highest reversal floor [floor]) among all car trips, side by side per
     rule; the legend gives each rule's mean.
     """
-    from roundtrip import _trip_kernel as K
+    from roundtrip import schedule as K
 
     results = list(comparison.results)
     if not results:
@@ -458,7 +463,7 @@ def _distribution(results, column: int, xlabel: str, title: str, out_dir, stem) 
             mean = float(v.mean()) if v.size else float("nan")
             ax.bar(ks - 0.4 + width * (i + 0.5), prob, width=width, color=rule_colour(rule),
                    edgecolor="white", linewidth=0.4, label=f"{rule} (mean {mean:.2f})",
-                   hatch="//" if rule == BASELINE else None)
+                   hatch="//" if _is_baseline(rule) else None)
         ax.set_xticks(ks)
         ax.set_xlim(-0.6, top + 0.6)
         ax.set_xlabel(xlabel)
@@ -508,8 +513,8 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
     at one floor are spread side by side); a grey bar marks a stop.
     """
     from allocation.registry import car_limit, get_rule
-    from roundtrip.montecarlo import PassengerSampler, time_trips, flight_table_s
-    from roundtrip import _trip_kernel as K
+    from roundtrip.montecarlo import PassengerSampler, time_trips
+    from roundtrip.schedule import STOPS, trip_timing
 
     name = building.name if building_name is None else building_name
     cars = group.cars
@@ -528,7 +533,7 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
             raise ValueError(f"rule = {rule.name!r}: takes batches of at most {rule.max_batch} "
                              f"passengers; this batch has {n}")
     limit = car_limit(n, cars, group.rated_load_persons)
-    flight = flight_table_s(building, group)
+    timing = trip_timing(building, group)
     drawn = []
     for rule in chosen:
         params = rule.params(building, group, cars, p)
@@ -537,8 +542,8 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
         for c in range(cars):
             idx = np.flatnonzero(car_of == c)
             trip = time_trips(building, group, orig[idx], dest[idx],
-                              np.array([0, idx.size], dtype=np.int64), flight)
-            per_car.append((idx, float(trip.rtt_s[0]), int(trip.counts[0, K.STOPS])))
+                              np.array([0, idx.size], dtype=np.int64), timing)
+            per_car.append((idx, float(trip.rtt_s[0]), int(trip.counts[0, STOPS])))
         drawn.append((rule.name, car_of, per_car))
 
     floors = building.floors

@@ -34,7 +34,7 @@ def main(trials: int | None = None, seed: int = 2026, out_dir="liftsort-out/clas
     from roundtrip.montecarlo import simulate_trips
 
     from .charts import classical_vs_simulation_chart
-    from .cli import demo_building_path
+    from .data import demo_building_path
     from .outputs import output_dir, write_atomic
 
     scenario = load_scenario(demo_building_path())

@@ -17,7 +17,7 @@ from pathlib import Path
 def main(out_dir="figures", seed: int = 2026) -> list[Path]:
     from roundtrip.inputfile import load_scenario
 
-    from .cli import demo_building_path
+    from .data import demo_building_path
     from .report_job import run_job
 
     out = Path(out_dir)

@@ -24,13 +24,15 @@ QUESTION = "How does the grouping gain depend on demand?"
 def main(trials: int | None = None, seed: int = 2026, out_dir="liftsort-out/gain-vs-demand"):
     """Run the sweep, save gain_vs_demand.png/.svg and gain_vs_demand.csv; return the table."""
     from .charts import sweep_charts
-    from .cli import demo_building_path
+    from allocation.registry import default_rules
+
+    from .data import demo_building_path
     from .outputs import output_dir, write_atomic
     from .sweep import demand_sweep
 
     scenario = load_scenario(demo_building_path())
     out = output_dir(out_dir)
-    table = demand_sweep(scenario, list(range(6, 21)), ["random", "sorted", "sectors", "fewest-stops"],
+    table = demand_sweep(scenario, list(range(6, 21)), default_rules(),
                          trials=trials, seed=seed)
     write_atomic(out / "gain_vs_demand.csv", table.to_csv(index=False))
     paths = [p for p in sweep_charts(table, out, scenario.building.name)]

@@ -23,8 +23,6 @@ from roundtrip.building import Scenario, Traffic
 from .outputs import write_atomic
 from .wording import CAUTION
 
-REPORT_RULES = ["random", "sorted", "sectors", "fewest-stops"]
-GROUPING_RULES = ["sorted", "sectors", "fewest-stops"]
 SWEEP_POINTS = 15
 
 
@@ -54,16 +52,17 @@ def input_rows(scenario: Scenario) -> list[tuple[str, str, str]]:
 
 def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[str, list, dict]:
     """The answer in plain words, from the figures."""
-    grouping = max(GROUPING_RULES, key=lambda r: rule_rows[r]["design_hc"])
-    g, base = rule_rows[grouping], rule_rows["random"]
+    base_name = next(iter(rule_rows))               # the baseline comes first
+    grouping = max(list(rule_rows)[1:], key=lambda r: rule_rows[r]["design_hc"])
+    g, base = rule_rows[grouping], rule_rows[base_name]
     nums = {"hc_gain_pct": g["hc_gain_pct_vs_random"], "hc_gain_ci95_pct": g["hc_gain_ci95_pct"],
             "rtt_gain_pct": g["rtt_gain_pct_vs_random"], "rtt_gain_ci95_pct": g["rtt_gain_ci95_pct"],
             "demand_pct_5min": demand, "random_design_hc_pct_5min": base["design_hc"],
             "grouping_design_hc_pct_5min": g["design_hc"]}
     designs = {d["rule"]: d for d in sizing["designs"]}
     saved = None
-    if designs["random"]["found"] and designs[grouping]["found"]:
-        saved = designs["random"]["cars"] - designs[grouping]["cars"]
+    if designs[base_name]["found"] and designs[grouping]["found"]:
+        saved = designs[base_name]["cars"] - designs[grouping]["cars"]
         nums["cars_saved"] = int(saved)
     where = (f"at the design load (conventional control is saturated at this demand of "
              f"{demand:.1f} % of the population in 5 minutes)" if base["design_hc"] < demand
@@ -111,7 +110,8 @@ def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: 
 
 def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, quiet, threads):
     from roundtrip.classical import demand_calculation
-    from roundtrip.group_montecarlo import compare_rules
+    from allocation.registry import default_rules
+    from batchrounds.montecarlo import compare_rules
     from roundtrip.montecarlo import simulate_demand
 
     from .report import write_report
@@ -119,6 +119,7 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
     from .sweep import demand_sweep
 
     b, g = scenario.building, scenario.group
+    rules = default_rules()
     traffic = scenario.traffic or Traffic(12.0)
     demand = traffic.arrival_rate_pct_5min
     run = dict(ci_target_pct=ci_target_pct, trials=trials, seed=seed, threads=threads)
@@ -126,18 +127,18 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
 
     classical = demand_calculation(b, g, traffic, poisson=True)
     mc = simulate_demand(b, g, traffic, **run)
-    comparison = compare_rules(b, g, REPORT_RULES, mc.passengers_per_trip, traffic=traffic, **run)
-    at_demand = {r["rule"]: r for r in comparison.to_dict()["rules"]}
-    sweep = demand_sweep(job, demand_points(demand), REPORT_RULES, max_trials=400_000,
+    comparison = compare_rules(b, g, rules, mc.passengers_per_trip, traffic=traffic, **run)
+    sweep = demand_sweep(job, demand_points(demand), rules, max_trials=400_000,
                          quiet=quiet, **run)
-    opens = demand_sweep(job, [demand], REPORT_RULES, cars_open_list=list(range(1, g.cars + 1)),
+    opens = demand_sweep(job, [demand], rules, cars_open_list=list(range(1, g.cars + 1)),
                          max_trials=400_000, quiet=quiet, **run)
     criteria = default_criteria(job)
-    sizing = size_group(job, REPORT_RULES, criteria, list(range(1, g.cars + 4)),
+    sizing = size_group(job, rules, criteria, list(range(1, g.cars + 4)),
                         [g.rated_load_persons], [g.rated_speed_mps], **run)
     design = opens[opens["cars_open"] == g.cars].set_index("rule")
-    for rule in REPORT_RULES:
-        at_demand[rule]["design_hc"] = float(design.loc[rule, "design_load_handling_capacity_pct_5min"])
+    at_demand = {r["rule"]: {**r, "design_hc": float(
+        design.loc[r["rule"], "design_load_handling_capacity_pct_5min"])}
+        for r in comparison.to_dict()["rules"]}
 
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -211,10 +212,12 @@ def _warm_up() -> None:
 
 
 def _later_charts(building, group, opens, comparison, passengers_per_car, seed, out_dir, name):
+    from allocation.registry import default_rules
+
     from . import charts
     paths = charts.cars_open_chart(opens, out_dir, name)
     paths += charts.distribution_charts(comparison, out_dir, name)
-    paths += charts.batch_diagram(building, group, rules=("random", "sorted"),
+    paths += charts.batch_diagram(building, group, rules=tuple(default_rules()[:2]),
                                   passengers_per_car=passengers_per_car, seed=seed,
                                   out_dir=out_dir, building_name=name)
     return paths

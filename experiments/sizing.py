@@ -51,9 +51,10 @@ def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, 
     Every candidate runs all rules still without a design, on common batches; the
     search stops as soon as every rule has one.
     """
-    from roundtrip.group_montecarlo import compare_rules
+    from allocation.registry import baseline_rule
+    from batchrounds.montecarlo import compare_rules
 
-    wanted = list(dict.fromkeys(["random", *rules]))
+    wanted = list(dict.fromkeys([baseline_rule(), *rules]))
     found: dict[str, dict] = {}
     tried = []
     for cars, load, speed in candidates(cars_list, loads, speeds):

@@ -18,51 +18,12 @@ and its 95 % interval.
 """
 from __future__ import annotations
 
-import sys
 from dataclasses import replace
-
-import numpy as np
 
 from roundtrip.building import Scenario, Traffic
 from roundtrip.inputfile import InputError
 
-
-def parse_range(text: str, option: str, *, whole: bool, low: float, most: int = 200) -> list:
-    """``start:stop:step`` (stop included) or a comma list, validated."""
-    def number(tok):
-        try:
-            v = float(tok)
-        except ValueError:
-            raise InputError([f"{option} {text!r}: {tok!r} is not a number."]) from None
-        if whole and not v.is_integer():
-            raise InputError([f"{option} {text!r}: {tok!r} is not a whole number."])
-        if not np.isfinite(v):
-            raise InputError([f"{option} {text!r}: {tok!r} is not finite."])
-        return int(v) if whole else v
-
-    if ":" in text:
-        parts = text.split(":")
-        if len(parts) not in (2, 3):
-            raise InputError([f"{option} {text!r}: give START:STOP or START:STOP:STEP."])
-        start, stop = number(parts[0]), number(parts[1])
-        step = number(parts[2]) if len(parts) == 3 else 1
-        if step <= 0:
-            raise InputError([f"{option} {text!r}: the step must be > 0."])
-        if stop < start:
-            raise InputError([f"{option} {text!r}: STOP must not be below START."])
-        count = int(np.floor((stop - start) / step + 1e-9)) + 1
-        values = [start + i * step for i in range(count)]
-        values = [int(round(v)) if whole else round(v, 10) for v in values]
-    else:
-        values = [number(t) for t in text.split(",") if t.strip()]
-    if not values:
-        raise InputError([f"{option} {text!r}: give at least one value."])
-    bad = [v for v in values if v < low]
-    if bad:
-        raise InputError([f"{option} {text!r}: every value must be >= {low:g} (got {bad[0]:g})."])
-    if len(values) > most:
-        raise InputError([f"{option} {text!r}: {len(values)} values; at most {most} are allowed."])
-    return list(dict.fromkeys(values))
+from .progress import progress_bar
 
 
 def _points(scenario: Scenario, arrivals, cars_list, cars_open_list):
@@ -78,20 +39,13 @@ def _points(scenario: Scenario, arrivals, cars_list, cars_open_list):
     return points
 
 
-def progress_bar(total: int, quiet: bool, desc: str):
-    """A tqdm bar on a terminal; silent when quiet or when stderr is not a terminal."""
-    from tqdm import tqdm
-    return tqdm(total=total, desc=desc, unit="point", leave=False,
-                disable=quiet or not sys.stderr.isatty())
-
-
 def demand_sweep(scenario: Scenario, arrivals, rules, *, cars_list=None, cars_open_list=None,
                  poisson: bool = True, trials: int | None = None, ci_target_pct: float = 0.5,
                  max_trials: int = 400_000, seed: int = 0, quiet: bool = True, threads=None):
     """The tidy sweep table (pandas DataFrame): one row per rule per point."""
     import pandas as pd
 
-    from roundtrip.group_montecarlo import compare_rules
+    from batchrounds.montecarlo import compare_rules
     from roundtrip.montecarlo import simulate_demand
 
     base_traffic = scenario.traffic or Traffic(arrivals[0])

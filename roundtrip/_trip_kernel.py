@@ -1,9 +1,10 @@
-"""Compiled kernels of the Monte Carlo round trip (numba, ``cache=True``).
+"""Compiled kernels of the trip model (numba, ``cache=True``).
 
-Arrays in, arrays out: no policy, no random state. The plain Python API in
-:mod:`roundtrip.montecarlo` validates inputs, owns the random stream and
-chooses what to run; :mod:`tests.reference_trip` holds the slow, obviously
-correct twin that these kernels must equal exactly.
+Arrays in, arrays out: no policy, no random state. The plain Python API
+(:mod:`roundtrip.schedule` for one trip, :mod:`roundtrip.montecarlo` for the
+one-car Monte Carlo) validates inputs, owns the random stream and chooses what
+to run; :mod:`tests.reference_trip` holds the slow, obviously correct twin that
+these kernels must equal exactly.
 
 The trip model of one car (documented with a worked trip in
 ``docs/trip_model.md``):
@@ -18,12 +19,20 @@ The trip model of one car (documented with a worked trip in
 * time = flights between consecutive stops (in trip order, from the
   flight-time table) + stops x (door open + door close + start delay), the
   lobby counted once + boardings x t_in + alightings x t_out, summed in that
-  order.
+  order (:func:`trip_time_s`, the one place the sum is written).
+
+Inputs arrive as small records (named tuples, see :mod:`roundtrip.schedule`
+and :mod:`roundtrip.passengers`): ``timing`` (flight table, stop overhead,
+door opening, transfer times, rated load), ``alias`` (the origin-destination
+alias table), ``stream`` (uniforms and per-trip offsets) and ``out`` (round-trip
+times and the integer counts).
 
 Stops are held in 64-bit masks (bit f for floor f), hence at most 63 served
 floors above the lobby.
 """
 from __future__ import annotations
+
+from typing import NamedTuple
 
 import numpy as np
 from numba import njit, prange
@@ -33,35 +42,115 @@ STOPS, HIGHEST, LOWEST, BOARDED, PEAK_LOAD, LEFT_BEHIND, OFFERED = range(7)
 N_COUNTS = 7
 
 
-@njit(cache=True)
-def _sample_cells(uniforms, alias_prob, alias_cell, cell_origin, cell_dest, origin_out, dest_out):
-    """Origin-destination pairs from uniforms by the alias method (one uniform each).
+class TripScratch(NamedTuple):
+    """Working arrays of one trip (made once per block by :func:`new_scratch`)."""
 
-    A uniform u picks column k = floor(u K) of the K-cell alias table and uses
-    the fraction u K - k to choose between the column's own cell and its alias;
-    cell c is the trip cell_origin[c] -> cell_dest[c].
+    order: np.ndarray       # int64, one entry per passenger: a direction's boarding order
+    alight: np.ndarray      # int64, one entry per floor: passengers due to alight there
+    boarded: np.ndarray     # int64, one entry per passenger: 1 when they board
+    mask: np.ndarray        # uint64, one entry: the stop mask a sweep builds
+
+
+class ScheduleOut(NamedTuple):
+    """Where :func:`trip_schedule` writes a trip's schedule (see :func:`new_schedule`).
+
+    Entry 0 is the start at the lobby, the last entry the return to it.
     """
-    K = alias_prob.shape[0]
-    for i in range(uniforms.shape[0]):
-        x = uniforms[i] * K
-        k = int(x)
-        if k >= K:
-            k = K - 1
-        a = alias_cell[k]
-        cell = a + (k - a) * ((x - k) < alias_prob[k])      # branch-free choice
-        origin_out[i] = cell_origin[cell]
-        dest_out[i] = cell_dest[cell]
+
+    stop_floor: np.ndarray   # int64, 2 x floors + 3 entries: the floor of each entry
+    arrive_s: np.ndarray     # float64: the car stops there (doors start to open) [s]
+    depart_s: np.ndarray     # float64: the car starts to move on [s]
+    boarded: np.ndarray      # int64: passengers boarding at the entry
+    alighted: np.ndarray     # int64: passengers alighting at the entry
+    board_stop: np.ndarray   # int64, one per passenger: their boarding entry, -1 left behind
+    alight_stop: np.ndarray  # int64, one per passenger: their alighting entry, -1 left behind
+    alight_s: np.ndarray     # float64, one per passenger: the moment they are out [s]
+    cum_flight_s: np.ndarray  # float64, per entry: flight time flown to reach it [s]
+    up_entry: np.ndarray     # int64, one per floor: the entry of the up stop there
+    down_entry: np.ndarray   # int64, one per floor: the entry of the down stop there
 
 
 @njit(cache=True)
-def _sweep(orig, dest, n, up, capacity, order, alight, stop_mask_out):
+def new_scratch(passengers, n_levels):
+    """Working arrays for trips of up to ``passengers`` passengers on ``n_levels`` floors."""
+    m = max(passengers, 1)
+    return TripScratch(np.empty(m, np.int64), np.empty(n_levels, np.int64),
+                       np.empty(m, np.int64), np.empty(1, np.uint64))
+
+
+@njit(cache=True)
+def new_schedule(passengers, n_levels):
+    """Output arrays of :func:`trip_schedule` for up to ``passengers`` passengers."""
+    e = 2 * n_levels + 1
+    m = max(passengers, 1)
+    return ScheduleOut(np.empty(e, np.int64), np.empty(e), np.empty(e), np.empty(e, np.int64),
+                       np.empty(e, np.int64), np.empty(m, np.int64), np.empty(m, np.int64),
+                       np.empty(m), np.empty(e), np.empty(n_levels, np.int64),
+                       np.empty(n_levels, np.int64))
+
+
+# ------------------------------------------------------------------ sampling
+@njit(cache=True, inline="always")
+def draw_cell(u, alias):
+    """The origin-destination cell a uniform ``u`` picks from the alias table.
+
+    Column k = floor(u K) of the K-cell table; the fraction u K - k chooses
+    between the column's own cell and its alias ("A linear algorithm for
+    generating random numbers with a given distribution", IEEE Transactions on
+    Software Engineering, 1991). The one place the draw is written.
+    """
+    K = alias.prob.shape[0]
+    x = u * K
+    k = int(x)
+    if k >= K:
+        k = K - 1
+    a = alias.alias[k]
+    return a + (k - a) * ((x - k) < alias.prob[k])      # branch-free choice
+
+
+@njit(cache=True)
+def sample_cells(uniforms, alias, origin_out, dest_out):
+    """Origin-destination pairs from uniforms by the alias method (one uniform each)."""
+    for i in range(uniforms.shape[0]):
+        cell = draw_cell(uniforms[i], alias)
+        origin_out[i] = alias.cell_origin[cell]
+        dest_out[i] = alias.cell_dest[cell]
+
+
+# ------------------------------------------------------------------ the trip
+@njit(cache=True, inline="always")
+def trip_time_s(flight_s, stops, boarded, timing):
+    """Round-trip time [s]: flights + (stops + 1) x stop overhead + boardings x t_in
+    + alightings x t_out (every passenger who boards alights), in that order."""
+    return (flight_s + (stops + 1) * timing.stop_overhead_s + boarded * timing.transfer_in_s
+            + boarded * timing.transfer_out_s)
+
+
+@njit(cache=True, inline="always")
+def write_counts(counts_out, row, stops, highest, lowest, boarded, peak, left, n):
+    """The trip's integer figures into ``counts_out[row]`` (the column constants)."""
+    counts_out[row, STOPS] = stops
+    counts_out[row, HIGHEST] = highest
+    counts_out[row, LOWEST] = lowest
+    counts_out[row, BOARDED] = boarded
+    counts_out[row, PEAK_LOAD] = peak
+    counts_out[row, LEFT_BEHIND] = left
+    counts_out[row, OFFERED] = n
+
+
+@njit(cache=True)
+def _sweep(orig, dest, n, up, capacity, scratch):
     """Board and alight one direction's passengers floor by floor.
 
-    ``order`` (scratch) receives this direction's passengers sorted by origin
-    (ascending for up, descending for down), stable in arrival order; the
-    sweep then boards each in turn while the load is below ``capacity``.
-    Returns (stop mask, boarded, peak load, left behind, origin-0 or dest-0 traffic).
+    ``scratch.order`` receives this direction's passengers sorted by origin
+    (ascending for up, descending for down), stable in arrival order; the sweep
+    then boards each in turn while the load is below ``capacity`` and marks
+    ``scratch.boarded[i] = 1`` for each who boards. Writes the stop mask into
+    ``scratch.mask[0]``; returns (boarded, peak load, left behind, origin-0 or
+    dest-0 traffic).
     """
+    order = scratch.order
+    alight = scratch.alight
     m = 0
     for i in range(n):
         if (dest[i] > orig[i]) == up and dest[i] != orig[i]:
@@ -86,7 +175,7 @@ def _sweep(orig, dest, n, up, capacity, order, alight, stop_mask_out):
     left = 0
     lobby = False
     if m == 0:
-        stop_mask_out[0] = mask
+        scratch.mask[0] = mask
         return 0, 0, 0, False
     n_levels = alight.shape[0]
     for f in range(n_levels):
@@ -109,6 +198,7 @@ def _sweep(orig, dest, n, up, capacity, order, alight, stop_mask_out):
         if load < capacity:
             load += 1
             boarded += 1
+            scratch.boarded[i] = 1
             alight[dest[i]] += 1
             mask |= one << np.uint64(dest[i])
             if load > peak:
@@ -119,7 +209,7 @@ def _sweep(orig, dest, n, up, capacity, order, alight, stop_mask_out):
             left += 1
         if o == 0:
             lobby = True
-    stop_mask_out[0] = mask
+    scratch.mask[0] = mask
     return boarded, peak, left, lobby
 
 
@@ -135,12 +225,13 @@ _DEBRUIJN_INDEX = np.array([
 
 
 @njit(cache=True, inline="always")
-def _lowest_bit(m):
+def lowest_bit(m):
+    """Index of the lowest set bit of the non-zero uint64 ``m``."""
     lsb = m & (~m + np.uint64(1))
     return _DEBRUIJN_INDEX[(lsb * _DEBRUIJN) >> np.uint64(58)]
 
 
-@njit(cache=True)
+@njit(cache=True, inline="always")
 def _route(up_mask, dn_mask, flight_s):
     """Fly the route: up stops ascending, down stops descending, back to the lobby.
 
@@ -153,9 +244,9 @@ def _route(up_mask, dn_mask, flight_s):
     pos = 0
     stops = 0
     m = up_mask & ~one                                # up journey, ascending
-    lowest = _lowest_bit(m) if m else -1
+    lowest = lowest_bit(m) if m else -1
     while m:
-        f = _lowest_bit(m)
+        f = lowest_bit(m)
         m &= m - one
         flight += flight_s[pos, f]
         pos = f
@@ -177,207 +268,271 @@ def _route(up_mask, dn_mask, flight_s):
 
 
 @njit(cache=True, inline="always")
-def car_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
-             transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row):
+def _all_at_lobby(orig, n):
+    for i in range(n):
+        if orig[i] != 0:
+            return False
+    return True
+
+
+@njit(cache=True, inline="always")
+def car_trip(orig, dest, n, timing, scratch, counts_out, row):
     """Time one car's round trip with its ``n`` passengers (first n of orig, dest).
 
     Writes the trip's integer figures into ``counts_out[row]`` (see the column
-    constants) and returns the round-trip time [s]. A trip whose passengers all
-    board at the lobby takes the short up-peak path; any other goes through the
-    floor-by-floor sweeps.
+    constants) and returns the round-trip time [s], the sum
+    :func:`trip_time_s` of the trip's schedule (:func:`trip_schedule` gives the
+    same trip stop by stop). A trip whose passengers all board at the lobby
+    takes the short up-peak path; any other goes through the floor-by-floor
+    sweeps.
     """
-    lobby_only = True
-    for i in range(n):
-        if orig[i] != 0:
-            lobby_only = False
-            break
-    if lobby_only:
-        return _lobby_trip(dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
-                           transfer_out_s, counts_out, row)
-    return _mixed_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
-                       transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row)
+    if _all_at_lobby(orig, n):
+        one = np.uint64(1)
+        boarded = min(n, timing.rated_load)
+        up_mask = np.uint64(0)
+        for i in range(boarded):
+            up_mask |= one << np.uint64(dest[i])
+        return lobby_trip_of_mask(up_mask, n, boarded, timing, counts_out, row)
+    return _mixed_trip(orig, dest, n, timing, scratch, counts_out, row)
 
 
 @njit(cache=True, inline="always")
-def _write_counts(counts_out, row, stops, highest, lowest, boarded, peak, left, n):
-    counts_out[row, STOPS] = stops
-    counts_out[row, HIGHEST] = highest
-    counts_out[row, LOWEST] = lowest
-    counts_out[row, BOARDED] = boarded
-    counts_out[row, PEAK_LOAD] = peak
-    counts_out[row, LEFT_BEHIND] = left
-    counts_out[row, OFFERED] = n
-
-
-@njit(cache=True, inline="always")
-def _lobby_trip(dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s, transfer_out_s,
-                counts_out, row):
-    """Up-peak trip: everyone waits at the lobby, so the first ``capacity``
-    passengers in arrival order board and the rest are left behind."""
-    one = np.uint64(1)
-    boarded = min(n, capacity)
-    up_mask = np.uint64(0)
-    for i in range(boarded):
-        up_mask |= one << np.uint64(dest[i])
-    return lobby_trip_of_mask(up_mask, n, boarded, flight_s, stop_overhead_s, transfer_in_s,
-                              transfer_out_s, counts_out, row)
-
-
-@njit(cache=True, inline="always")
-def lobby_trip_of_mask(up_mask, n, boarded, flight_s, stop_overhead_s, transfer_in_s,
-                       transfer_out_s, counts_out, row):
+def lobby_trip_of_mask(up_mask, n, boarded, timing, counts_out, row):
     """The up-peak trip once its stops are known: ``up_mask`` holds the destinations of
     the ``boarded`` passengers (of ``n`` offered at the lobby). Writes counts_out[row]
     and returns the round-trip time [s]."""
-    flight, stops, highest, lowest = _route(up_mask, np.uint64(0), flight_s)
-    _write_counts(counts_out, row, stops, highest, 0, boarded, boarded, n - boarded, n)
-    return flight + (stops + 1) * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s
+    flight, stops, highest, lowest = _route(up_mask, np.uint64(0), timing.flight_s)
+    write_counts(counts_out, row, stops, highest, 0, boarded, boarded, n - boarded, n)
+    return trip_time_s(flight, stops, boarded, timing)
 
 
 @njit(cache=True)
-def _mixed_trip(orig, dest, n, flight_s, capacity, stop_overhead_s, transfer_in_s,
-                transfer_out_s, scratch_order, scratch_alight, scratch_mask, counts_out, row):
+def _mixed_trip(orig, dest, n, timing, scratch, counts_out, row):
     """Any trip: the up sweep and the down sweep decide who boards, then the route."""
-    b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, capacity,
-                                              scratch_order, scratch_alight, scratch_mask)
-    up_mask = scratch_mask[0]
-    b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, capacity,
-                                              scratch_order, scratch_alight, scratch_mask)
-    dn_mask = scratch_mask[0]
+    b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, timing.rated_load, scratch)
+    up_mask = scratch.mask[0]
+    b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, timing.rated_load, scratch)
+    dn_mask = scratch.mask[0]
     boarded = b_up + b_dn
-    flight, stops, highest, lowest = _route(up_mask, dn_mask, flight_s)
+    flight, stops, highest, lowest = _route(up_mask, dn_mask, timing.flight_s)
     if lobby_up or lobby_dn or lowest < 0:
         lowest = 0
-    _write_counts(counts_out, row, stops, highest, lowest, boarded, max(peak_up, peak_dn),
-                  left_up + left_dn, n)
-    return flight + (stops + 1) * stop_overhead_s + boarded * transfer_in_s + boarded * transfer_out_s
+    write_counts(counts_out, row, stops, highest, lowest, boarded, max(peak_up, peak_dn),
+                 left_up + left_dn, n)
+    return trip_time_s(flight, stops, boarded, timing)
+
+
+# ------------------------------------------------------------------ the schedule
+@njit(cache=True)
+def trip_schedule(orig, dest, n, timing, scratch, out):
+    """One car's trip stop by stop: who boards, the route, and the time of every event.
+
+    The same model as :func:`car_trip` (the same sweeps decide who boards, the
+    same route is flown), written out per stop into ``out`` (a
+    :class:`ScheduleOut` from :func:`new_schedule`). Entry 0 is the start at the
+    lobby, entries 1 ... S the stops above it in trip order, entry S + 1 the
+    return to the lobby. Time 0 is the start of the lobby stop (doors start to
+    open). Every time is the model's sum over what happened before it, in the
+    order of :func:`trip_time_s`::
+
+        arrive[s] = F_s + s o + B_<s t_in + A_<s t_out
+        depart[s] = F_s + (s + 1) o + B_<=s t_in + A_<=s t_out
+
+    with F_s the flight time flown to reach entry s, o the stop overhead
+    (door open + door close + start delay) and B, A the boardings and
+    alightings so far. A passenger alighting j-th (in arrival order) at entry s
+    is out at arrive[s] + door open + j t_out. The last entry's ``depart_s``
+    is the round-trip time (the lobby stop counted once, at the start, as in
+    ``docs/trip_model.md``); it equals :func:`car_trip` to the bit.
+
+    Returns
+    -------
+    (entries, round_trip_time_s)
+        ``entries`` = S + 2 filled entries.
+    """
+    one = np.uint64(1)
+    flags = scratch.boarded
+    for i in range(n):
+        flags[i] = 0
+    if _all_at_lobby(orig, n):
+        up_mask = np.uint64(0)
+        dn_mask = np.uint64(0)
+        for i in range(min(n, timing.rated_load)):
+            flags[i] = 1
+            up_mask |= one << np.uint64(dest[i])
+    else:
+        _sweep(orig, dest, n, True, timing.rated_load, scratch)
+        up_mask = scratch.mask[0]
+        _sweep(orig, dest, n, False, timing.rated_load, scratch)
+        dn_mask = scratch.mask[0]
+    flight_s = timing.flight_s
+    n_levels = flight_s.shape[0]
+    # the route, as _route flies it, entry by entry
+    e = 0
+    out.stop_floor[0] = 0
+    out.cum_flight_s[0] = 0.0
+    flight = 0.0
+    pos = 0
+    m = up_mask & ~one
+    while m:
+        f = lowest_bit(m)
+        m &= m - one
+        flight += flight_s[pos, f]
+        pos = f
+        e += 1
+        out.stop_floor[e] = f
+        out.cum_flight_s[e] = flight
+        out.up_entry[f] = e
+    if dn_mask & ~one:
+        for f in range(n_levels - 1, 0, -1):
+            if (dn_mask >> np.uint64(f)) & one:
+                if f != pos:
+                    flight += flight_s[pos, f]
+                    pos = f
+                    e += 1
+                    out.stop_floor[e] = f
+                    out.cum_flight_s[e] = flight
+                out.down_entry[f] = e
+    flight += flight_s[pos, 0]
+    e += 1
+    out.stop_floor[e] = 0
+    out.cum_flight_s[e] = flight
+    out.up_entry[0] = 0
+    out.down_entry[0] = e
+    for s in range(e + 1):
+        out.boarded[s] = 0
+        out.alighted[s] = 0
+    total = 0
+    for i in range(n):
+        if flags[i]:
+            if dest[i] > orig[i]:
+                b, a = out.up_entry[orig[i]], out.up_entry[dest[i]]
+            else:
+                b, a = out.down_entry[orig[i]], out.down_entry[dest[i]]
+            out.board_stop[i] = b
+            out.alight_stop[i] = a
+            out.boarded[b] += 1
+            out.alighted[a] += 1
+            total += 1
+        else:
+            out.board_stop[i] = -1
+            out.alight_stop[i] = -1
+    o = timing.stop_overhead_s
+    B = 0
+    A = 0
+    for s in range(e + 1):
+        out.arrive_s[s] = out.cum_flight_s[s] + s * o + B * timing.transfer_in_s + A * timing.transfer_out_s
+        B += out.boarded[s]
+        A += out.alighted[s]
+        out.depart_s[s] = (out.cum_flight_s[s] + (s + 1) * o + B * timing.transfer_in_s
+                           + A * timing.transfer_out_s)
+    rtt = trip_time_s(flight, e - 1, total, timing)
+    out.depart_s[e] = rtt
+    # each alighting passenger's moment out, in arrival order at their stop
+    for s in range(e + 1):
+        out.alighted[s] = 0                       # reused as the running count
+    for i in range(n):
+        a = out.alight_stop[i]
+        if a >= 0:
+            out.alighted[a] += 1
+            out.alight_s[i] = out.arrive_s[a] + timing.door_open_s + out.alighted[a] * timing.transfer_out_s
+        else:
+            out.alight_s[i] = np.nan
+    return e + 1, rtt
+
+
+# ------------------------------------------------------------------ many trips
+@njit(cache=True)
+def _longest(offsets, first, last):
+    longest = 1
+    for t in range(first, last):
+        longest = max(longest, offsets[t + 1] - offsets[t])
+    return longest
+
+
+@njit(cache=True, inline="always")
+def _block(b, n_blocks, n_trials):
+    return b * n_trials // n_blocks, (b + 1) * n_trials // n_blocks
 
 
 @njit(cache=True)
-def _single_car_block(orig, dest, offsets, first, last, flight_s, capacity, stop_overhead_s,
-                      transfer_in_s, transfer_out_s, rtt_out, counts_out):
+def _given_block(orig, dest, offsets, first, last, timing, out):
     """Trips ``first`` .. ``last - 1``; trip t's passengers are offsets[t]:offsets[t+1]."""
-    n_levels = flight_s.shape[0]
-    longest = 0
-    for t in range(first, last):
-        longest = max(longest, offsets[t + 1] - offsets[t])
-    order = np.empty(max(longest, 1), np.int64)
-    alight = np.empty(n_levels, np.int64)
-    mask = np.empty(1, np.uint64)
+    scratch = new_scratch(_longest(offsets, first, last), timing.flight_s.shape[0])
     for t in range(first, last):
         s = offsets[t]
         e = offsets[t + 1]
-        rtt_out[t] = car_trip(orig[s:e], dest[s:e], e - s, flight_s, capacity, stop_overhead_s,
-                              transfer_in_s, transfer_out_s, order, alight, mask, counts_out, t)
+        out.rtt_s[t] = car_trip(orig[s:e], dest[s:e], e - s, timing, scratch, out.counts, t)
 
 
 @njit(cache=True, parallel=True)
-def single_car_trips(orig, dest, offsets, flight_s, capacity, stop_overhead_s, transfer_in_s,
-                     transfer_out_s, n_blocks, rtt_out, counts_out):
-    """Every trial is one car's trip; trials are split into ``n_blocks`` run in parallel.
-
-    Each trial's result depends only on its own passengers, so the numbers are
-    the same for any thread count.
-    """
+def given_car_trips(orig, dest, offsets, timing, n_blocks, out):
+    """Every trial is one car's trip with given passengers; trials are split into
+    ``n_blocks`` run in parallel. Each trial's result depends only on its own
+    passengers, so the numbers are the same for any thread count."""
     n_trials = offsets.shape[0] - 1
     for b in prange(n_blocks):
-        first = b * n_trials // n_blocks
-        last = (b + 1) * n_trials // n_blocks
-        _single_car_block(orig, dest, offsets, first, last, flight_s, capacity,
-                          stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out, counts_out)
+        first, last = _block(b, n_blocks, n_trials)
+        _given_block(orig, dest, offsets, first, last, timing, out)
 
 
 @njit(cache=True, parallel=True)
-def sample_cells(uniforms, alias_prob, alias_cell, cell_origin, cell_dest, n_blocks, origin_out,
-                 dest_out):
-    """Parallel :func:`_sample_cells` over ``n_blocks`` contiguous blocks."""
+def sample_cells_parallel(uniforms, alias, n_blocks, origin_out, dest_out):
+    """Parallel :func:`sample_cells` over ``n_blocks`` contiguous blocks."""
     n = uniforms.shape[0]
     for b in prange(n_blocks):
-        first = b * n // n_blocks
-        last = (b + 1) * n // n_blocks
-        _sample_cells(uniforms[first:last], alias_prob, alias_cell, cell_origin, cell_dest,
-                      origin_out[first:last], dest_out[first:last])
+        first, last = _block(b, n_blocks, n)
+        sample_cells(uniforms[first:last], alias, origin_out[first:last], dest_out[first:last])
 
 
 @njit(cache=True)
-def _sampled_car_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
-                       cell_dest, flight_s, capacity, stop_overhead_s, transfer_in_s,
-                       transfer_out_s, rtt_out, counts_out):
-    """As :func:`_single_car_block`, sampling each trip's passengers from its uniforms
+def _sampled_block(stream, first, last, alias, timing, out):
+    """As :func:`_given_block`, sampling each trip's passengers from its uniforms
     into a small buffer first (the passengers never leave the cache)."""
-    n_levels = flight_s.shape[0]
-    longest = 0
-    for t in range(first, last):
-        longest = max(longest, offsets[t + 1] - offsets[t])
-    orig = np.empty(max(longest, 1), np.int64)
-    dest = np.empty(max(longest, 1), np.int64)
-    order = np.empty(max(longest, 1), np.int64)
-    alight = np.empty(n_levels, np.int64)
-    mask = np.empty(1, np.uint64)
+    offsets = stream.offsets
+    longest = _longest(offsets, first, last)
+    orig = np.empty(longest, np.int64)
+    dest = np.empty(longest, np.int64)
+    scratch = new_scratch(longest, timing.flight_s.shape[0])
     for t in range(first, last):
         s = offsets[t]
         e = offsets[t + 1]
-        _sample_cells(uniforms[s:e], alias_prob, alias_cell, cell_origin, cell_dest, orig, dest)
-        rtt_out[t] = car_trip(orig, dest, e - s, flight_s, capacity, stop_overhead_s,
-                              transfer_in_s, transfer_out_s, order, alight, mask, counts_out, t)
+        sample_cells(stream.uniforms[s:e], alias, orig, dest)
+        out.rtt_s[t] = car_trip(orig, dest, e - s, timing, scratch, out.counts, t)
 
 
 @njit(cache=True, parallel=True)
-def sampled_car_trips(uniforms, offsets, alias_prob, alias_cell, cell_origin, cell_dest, flight_s,
-                      capacity, stop_overhead_s, transfer_in_s, transfer_out_s, n_blocks,
-                      rtt_out, counts_out):
-    """Every trial is one car's trip, its passengers drawn from uniforms[offsets[t]:offsets[t+1]]
-    by the alias table; the same numbers as :func:`sample_cells` then :func:`single_car_trips`."""
-    n_trials = offsets.shape[0] - 1
+def sampled_car_trips(stream, alias, timing, n_blocks, out):
+    """Every trial is one car's trip, its passengers drawn from
+    stream.uniforms[offsets[t]:offsets[t+1]] by the alias table; the same numbers
+    as :func:`sample_cells` then :func:`given_car_trips`."""
+    n_trials = stream.offsets.shape[0] - 1
     for b in prange(n_blocks):
-        first = b * n_trials // n_blocks
-        last = (b + 1) * n_trials // n_blocks
-        _sampled_car_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_origin,
-                           cell_dest, flight_s, capacity, stop_overhead_s, transfer_in_s,
-                           transfer_out_s, rtt_out, counts_out)
+        first, last = _block(b, n_blocks, n_trials)
+        _sampled_block(stream, first, last, alias, timing, out)
 
 
 @njit(cache=True)
-def _uppeak_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_dest, flight_s,
-                  capacity, stop_overhead_s, transfer_in_s, transfer_out_s, rtt_out, counts_out):
+def _uppeak_block(stream, first, last, alias, timing, out):
     """Up-peak trips (every origin the lobby): sample each boarding passenger's
     destination straight into the stop mask. The same numbers as
-    :func:`_sampled_car_block` when the OD matrix has only lobby origins."""
-    K = alias_prob.shape[0]
+    :func:`_sampled_block` when the OD matrix has only lobby origins."""
     one = np.uint64(1)
+    uniforms = stream.uniforms
     for t in range(first, last):
-        s = offsets[t]
-        n = offsets[t + 1] - s
-        boarded = min(n, capacity)
+        s = stream.offsets[t]
+        n = stream.offsets[t + 1] - s
+        boarded = min(n, timing.rated_load)
         mask = np.uint64(0)
         for i in range(s, s + boarded):
-            x = uniforms[i] * K
-            k = int(x)
-            if k >= K:
-                k = K - 1
-            a = alias_cell[k]
-            cell = a + (k - a) * ((x - k) < alias_prob[k])
-            mask |= one << np.uint64(cell_dest[cell])
-        flight, stops, highest, lowest = _route(mask, np.uint64(0), flight_s)
-        rtt_out[t] = (flight + (stops + 1) * stop_overhead_s + boarded * transfer_in_s
-                      + boarded * transfer_out_s)
-        counts_out[t, STOPS] = stops
-        counts_out[t, HIGHEST] = highest
-        counts_out[t, LOWEST] = 0
-        counts_out[t, BOARDED] = boarded
-        counts_out[t, PEAK_LOAD] = boarded
-        counts_out[t, LEFT_BEHIND] = n - boarded
-        counts_out[t, OFFERED] = n
+            mask |= one << np.uint64(alias.cell_dest[draw_cell(uniforms[i], alias)])
+        out.rtt_s[t] = lobby_trip_of_mask(mask, n, boarded, timing, out.counts, t)
 
 
 @njit(cache=True, parallel=True)
-def uppeak_car_trips(uniforms, offsets, alias_prob, alias_cell, cell_dest, flight_s, capacity,
-                     stop_overhead_s, transfer_in_s, transfer_out_s, n_blocks, rtt_out, counts_out):
+def uppeak_car_trips(stream, alias, timing, n_blocks, out):
     """Parallel :func:`_uppeak_block` over ``n_blocks`` blocks of trials."""
-    n_trials = offsets.shape[0] - 1
+    n_trials = stream.offsets.shape[0] - 1
     for b in prange(n_blocks):
-        first = b * n_trials // n_blocks
-        last = (b + 1) * n_trials // n_blocks
-        _uppeak_block(uniforms, offsets, first, last, alias_prob, alias_cell, cell_dest,
-                      flight_s, capacity, stop_overhead_s, transfer_in_s, transfer_out_s,
-                      rtt_out, counts_out)
+        first, last = _block(b, n_blocks, n_trials)
+        _uppeak_block(stream, first, last, alias, timing, out)

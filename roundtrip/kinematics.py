@@ -179,3 +179,25 @@ def motion_profile(distance_m: float, rated_speed_mps: float, acceleration_mps2:
     ta = max(vp / ap - ap / j, 0.0)
     tc = max((d - vp * (vp / ap + ap / j)) / vp, 0.0) if regime == 1 else 0.0
     return MotionProfile(d, regime, float(ap), float(vp), (tj, ta, tj, tc, tj, ta, tj), j)
+
+
+def flight_table_s(levels_m, rated_speed_mps: float, acceleration_mps2: float,
+                   jerk_mps3: float) -> np.ndarray:
+    """Ideal flight time between every pair of floor levels [s].
+
+    Parameters
+    ----------
+    levels_m : array_like
+        Level of each floor above the lobby [m], floor 0 first.
+    rated_speed_mps, acceleration_mps2, jerk_mps3 : float
+        As :func:`flight_time_s`.
+
+    Returns
+    -------
+    ndarray, shape (floors + 1, floors + 1)
+        ``t[a, b] = t_f(|level_a - level_b|)``, C-contiguous (the compiled trip
+        model reads it row by row).
+    """
+    levels = np.asarray(levels_m, dtype=float)
+    dist = np.abs(levels[:, None] - levels[None, :])
+    return np.ascontiguousarray(flight_time_s(dist, rated_speed_mps, acceleration_mps2, jerk_mps3))

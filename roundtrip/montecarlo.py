@@ -28,18 +28,10 @@ import numpy as np
 from . import _trip_kernel as K
 from .building import Building, LiftGroup, Traffic
 from .classical import average_waiting_time_s, demand_calculation
-from .kinematics import flight_time_s
-from .passengers import alias_table, od_matrix, passenger_counts
+from .passengers import AliasTable, od_alias_table, od_matrix, passenger_counts
+from .schedule import TripOut, TripStream, TripTiming, trip_timing
 
 Z95 = 1.959963984540054   # two-sided 95 % normal quantile
-
-
-def flight_table_s(building: Building, group: LiftGroup) -> np.ndarray:
-    """Flight time between every pair of floors 0 ... N on the real levels [s]."""
-    levels = building.levels_m
-    dist = np.abs(levels[:, None] - levels[None, :])
-    return np.ascontiguousarray(
-        flight_time_s(dist, group.rated_speed_mps, group.acceleration_mps2, group.jerk_mps3))
 
 
 @dataclass(frozen=True)
@@ -64,7 +56,7 @@ class TripSample:
     """Per-trial figures of a run: round-trip time [s] and the integer counts."""
 
     rtt_s: np.ndarray
-    counts: np.ndarray          # columns as in _trip_kernel (STOPS, HIGHEST, ...)
+    counts: np.ndarray          # columns as in roundtrip.schedule (STOPS, HIGHEST, ...)
 
     def column(self, which: int) -> np.ndarray:
         return self.counts[:, which]
@@ -80,16 +72,13 @@ class PassengerSampler:
     def __init__(self, building: Building, traffic: Traffic | None = None):
         self.n_levels = building.floors + 1
         self.od = od_matrix(building, traffic)
-        self.alias_prob, self.alias_cell = alias_table(self.od)
-        cells = np.arange(self.od.size, dtype=np.int64)
-        self.cell_origin = cells // self.n_levels
-        self.cell_dest = cells % self.n_levels
+        self.alias: AliasTable = od_alias_table(self.od)
         #: every trip starts at the lobby: the up-peak kernel applies
         self.lobby_origins_only = bool(np.all(self.od[1:, :] == 0))
 
     def uniforms(self, rng: np.random.Generator, mean_passengers: float, n_trials: int,
-                 poisson: bool):
-        """The random stream of ``n_trials`` trips: (uniforms, offsets).
+                 poisson: bool) -> TripStream:
+        """The random stream of ``n_trials`` trips.
 
         First the passenger counts, then one uniform per passenger; trial t's
         passengers come from uniforms[offsets[t]:offsets[t+1]], in arrival order.
@@ -97,34 +86,31 @@ class PassengerSampler:
         counts = passenger_counts(rng, mean_passengers, n_trials, poisson)
         offsets = np.zeros(n_trials + 1, dtype=np.int64)
         np.cumsum(counts, out=offsets[1:])
-        return rng.random(int(offsets[-1])), offsets
+        return TripStream(rng.random(int(offsets[-1])), offsets)
+
+    def cells(self, uniforms: np.ndarray):
+        """(origins, destinations) of the passengers that ``uniforms`` pick."""
+        orig = np.empty(uniforms.size, dtype=np.int64)
+        dest = np.empty(uniforms.size, dtype=np.int64)
+        K.sample_cells_parallel(uniforms, self.alias, _blocks(uniforms.size // 8), orig, dest)
+        return orig, dest
 
     def draw(self, rng: np.random.Generator, mean_passengers: float, n_trials: int,
              poisson: bool):
         """Passenger batches (origins, destinations, offsets) from :meth:`uniforms`."""
-        u, offsets = self.uniforms(rng, mean_passengers, n_trials, poisson)
-        orig = np.empty(u.size, dtype=np.int64)
-        dest = np.empty(u.size, dtype=np.int64)
-        K.sample_cells(u, self.alias_prob, self.alias_cell, self.cell_origin, self.cell_dest,
-                       _blocks(u.size // 8), orig, dest)
-        return orig, dest, offsets
+        stream = self.uniforms(rng, mean_passengers, n_trials, poisson)
+        orig, dest = self.cells(stream.uniforms)
+        return orig, dest, stream.offsets
 
-    def sampled_trips(self, group: LiftGroup, flight_s: np.ndarray, u, offsets) -> "TripSample":
+    def sampled_trips(self, timing: TripTiming, stream: TripStream) -> TripSample:
         """Time one car's trip per trial, sampling its passengers inside the kernel:
-        the same numbers as :meth:`draw` then :func:`time_trips`, faster."""
-        n = offsets.size - 1
-        rtt = np.empty(n)
-        counts = np.empty((n, K.N_COUNTS), dtype=np.int64)
-        if self.lobby_origins_only:
-            K.uppeak_car_trips(u, offsets, self.alias_prob, self.alias_cell, self.cell_dest,
-                               flight_s, group.rated_load_persons, group.stop_overhead_s,
-                               group.transfer_in_s, group.transfer_out_s, _blocks(n), rtt, counts)
-            return TripSample(rtt, counts)
-        K.sampled_car_trips(u, offsets, self.alias_prob, self.alias_cell, self.cell_origin,
-                            self.cell_dest, flight_s, group.rated_load_persons,
-                            group.stop_overhead_s, group.transfer_in_s, group.transfer_out_s,
-                            _blocks(n), rtt, counts)
-        return TripSample(rtt, counts)
+        the same numbers as :meth:`draw` then :func:`time_trips`, faster. The one
+        helper through which every caller runs the one-car kernels."""
+        n = stream.offsets.size - 1
+        out = TripOut.empty(n)
+        kernel = K.uppeak_car_trips if self.lobby_origins_only else K.sampled_car_trips
+        kernel(stream, self.alias, timing, _blocks(n), out)
+        return TripSample(out.rtt_s, out.counts)
 
 
 def _blocks(n_trials: int) -> int:
@@ -133,18 +119,15 @@ def _blocks(n_trials: int) -> int:
 
 
 def time_trips(building: Building, group: LiftGroup, orig, dest, offsets,
-               flight_s: np.ndarray | None = None) -> TripSample:
+               timing: TripTiming | None = None) -> TripSample:
     """Time one car's trip per trial for given passengers (see :class:`PassengerSampler`)."""
-    flight = flight_table_s(building, group) if flight_s is None else flight_s
+    timing = trip_timing(building, group) if timing is None else timing
     n = offsets.size - 1
-    rtt = np.empty(n)
-    counts = np.empty((n, K.N_COUNTS), dtype=np.int64)
-    K.single_car_trips(np.ascontiguousarray(orig, dtype=np.int64),
-                       np.ascontiguousarray(dest, dtype=np.int64),
-                       np.ascontiguousarray(offsets, dtype=np.int64), flight,
-                       group.rated_load_persons, group.stop_overhead_s, group.transfer_in_s,
-                       group.transfer_out_s, _blocks(n), rtt, counts)
-    return TripSample(rtt, counts)
+    out = TripOut.empty(n)
+    K.given_car_trips(np.ascontiguousarray(orig, dtype=np.int64),
+                      np.ascontiguousarray(dest, dtype=np.int64),
+                      np.ascontiguousarray(offsets, dtype=np.int64), timing, _blocks(n), out)
+    return TripSample(out.rtt_s, out.counts)
 
 
 @dataclass(frozen=True)
@@ -221,7 +204,7 @@ class MonteCarloResult:
         }
 
 
-def _check_run_options(trials, ci_target_pct, max_trials, threads) -> None:
+def check_run_options(trials, ci_target_pct, max_trials, threads) -> None:
     if trials is not None and (not isinstance(trials, (int, np.integer)) or trials < 2):
         raise ValueError(f"trials = {trials!r}: must be a whole number >= 2")
     if not (ci_target_pct > 0 and math.isfinite(ci_target_pct)):
@@ -263,7 +246,7 @@ def run_until(chunk, trials: int | None, ci_target_pct: float, max_trials: int,
         want = int(min(max(needed - n, 1000), max_trials - n))
 
 
-def _with_threads(threads, fn):
+def with_threads(threads, fn):
     if threads is None:
         return fn()
     import numba
@@ -305,16 +288,16 @@ def simulate_trips(building: Building, group: LiftGroup, passengers: float, *,
     """
     if not (passengers >= 0 and math.isfinite(passengers)):
         raise ValueError(f"passengers = {passengers!r}: must be a finite number >= 0")
-    _check_run_options(trials, ci_target_pct, max_trials, threads)
+    check_run_options(trials, ci_target_pct, max_trials, threads)
     sampler = PassengerSampler(building, traffic)
-    flight = flight_table_s(building, group)
+    timing = trip_timing(building, group)
     rng = np.random.default_rng(seed)
 
     def chunk(n):
-        s = sampler.sampled_trips(group, flight, *sampler.uniforms(rng, passengers, n, poisson))
+        s = sampler.sampled_trips(timing, sampler.uniforms(rng, passengers, n, poisson))
         return s.rtt_s, s
 
-    samples = _with_threads(threads, lambda: run_until(chunk, trials, ci_target_pct, max_trials))
+    samples = with_threads(threads, lambda: run_until(chunk, trials, ci_target_pct, max_trials))
     sample = TripSample(np.concatenate([s.rtt_s for s in samples]),
                         np.concatenate([s.counts for s in samples]))
     return _result(building, group, passengers, poisson, sample, seed, keep_sample)

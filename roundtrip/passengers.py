@@ -19,6 +19,7 @@ a real P the two nearest integers mixed so that the mean is P.
 from __future__ import annotations
 
 import math
+from typing import NamedTuple
 
 import numpy as np
 
@@ -80,6 +81,24 @@ def alias_table(probabilities) -> tuple[np.ndarray, np.ndarray]:
         prob[k] = 1.0
         alias[k] = k
     return prob, alias
+
+
+class AliasTable(NamedTuple):
+    """The origin-destination matrix as an alias table over its cells (the record the
+    compiled sampler reads): cell c is the trip cell_origin[c] -> cell_dest[c]."""
+
+    prob: np.ndarray          # float64, K cells: chance of keeping the column's own cell
+    alias: np.ndarray         # int64, K: the column's alias cell
+    cell_origin: np.ndarray   # int64, K
+    cell_dest: np.ndarray     # int64, K
+
+
+def od_alias_table(od: np.ndarray) -> AliasTable:
+    """The :class:`AliasTable` of an origin-destination matrix (floors 0 ... N square)."""
+    n_levels = od.shape[0]
+    prob, alias = alias_table(od)
+    cells = np.arange(od.size, dtype=np.int64)
+    return AliasTable(prob, alias, cells // n_levels, cells % n_levels)
 
 
 def passenger_counts(rng: np.random.Generator, mean_passengers: float, n_trials: int,

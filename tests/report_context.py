@@ -23,7 +23,7 @@ def tiny_context(out_dir: Path, building_name: str = HOSTILE_NAME, *, trials: in
                  seed: int = 7) -> dict:
     """Run a tiny comparison, draw two of its charts into out_dir, and return a context."""
     from experiments import charts
-    from roundtrip.group_montecarlo import compare_rules
+    from batchrounds.montecarlo import compare_rules
 
     c = compare_rules(HOLLIN_YARD, HOLLIN_GROUP, ["random", "sorted", "sectors"], 6.0,
                       trials=trials, seed=seed)

@@ -17,13 +17,15 @@ from allocation.ordering import destination_order, equal_cut
 from allocation.registry import RULES, car_limit, get_rule, scratch_size
 from allocation.sectors import (band_round_trip_s, floor_bands, sectors_by_floor_counts,
                                 sectors_in_order)
+from allocation.contract import empty_cars
+from batchrounds import _kernel as G
+from batchrounds.montecarlo import compare_rules
 from experiments.cli import main
-from roundtrip import _group_kernel as G
-from roundtrip import _trip_kernel as K
+from roundtrip import schedule as K
 from roundtrip.building import Building, LiftGroup, Traffic
-from roundtrip.group_montecarlo import compare_rules
 from roundtrip.kinematics import flight_time_s
-from roundtrip.montecarlo import flight_table_s
+from roundtrip.passengers import AliasTable
+from roundtrip.schedule import TripStream, trip_timing
 
 from .reference_trip import reference_trip
 
@@ -31,6 +33,11 @@ GROUP = LiftGroup(cars=4, rated_load_persons=8, rated_speed_mps=1.6, acceleratio
                   jerk_mps3=1.5, door_open_s=1.8, door_close_s=2.9, start_delay_s=0.5,
                   transfer_in_s=1.2, transfer_out_s=1.2, capacity_factor=0.8)
 PLAIN_RULES = [r for r in RULES if r != "best"]
+
+
+def flight_table_s(building, group):
+    """The flight-time table of the trip model [s]."""
+    return trip_timing(building, group).flight_s
 
 
 @st.composite
@@ -91,21 +98,19 @@ def test_group_kernel_times_each_car_as_the_trip_model_and_never_overloads(bp, k
     d = np.array([p[1] for p in pairs], dtype=np.int64).reshape(-1)
     offsets = np.array([0, len(pairs)], dtype=np.int64)
     r = get_rule(rule)
-    params = np.zeros((L + 1, 64))
-    row = r.params(building, group, k, max(len(pairs), 1) / L)
-    params[k, :row.size] = row
+    params = r.params(building, group, k, max(len(pairs), 1) / L)
     flight = flight_table_s(building, group)
-    rtt = np.empty((1, L))
-    counts = np.empty((1, L, K.N_COUNTS), np.int64)
-    unalloc = np.empty(1, np.int64)
+    out = G.GroupOut(np.empty((1, L)), np.empty((1, L, K.N_COUNTS), np.int64),
+                     np.empty(1, np.int64))
+    rtt, counts, unalloc = out
     # an alias table whose cell i is passenger i, and uniforms that pick cell i in turn,
     # make the kernel draw exactly this batch
     n_cells = max(len(pairs), 1)
     u = (np.arange(len(pairs)) + 0.5) / n_cells
-    G.group_trips(r.compiled, u, offsets, np.ones(n_cells), np.arange(n_cells),
-                  np.concatenate((o, [0]))[:n_cells], np.concatenate((d, [1]))[:n_cells],
-                  L, k, 3, params, flight, group.stop_overhead_s,
-                  group.transfer_in_s, group.transfer_out_s, 1, rtt, counts, unalloc)
+    alias = AliasTable(np.ones(n_cells), np.arange(n_cells), np.concatenate((o, [0]))[:n_cells],
+                       np.concatenate((d, [1]))[:n_cells])
+    G.group_trips(r.compiled, TripStream(u, offsets), alias, G.GroupLayout(L, k),
+                  trip_timing(building, group), params.table, 1, out)
     # rebuild the allocation with the plain rule, sub-batch by sub-batch
     n = len(pairs)
     fl = flight.tolist()
@@ -115,7 +120,7 @@ def test_group_kernel_times_each_car_as_the_trip_model_and_never_overloads(bp, k
         fits = min(b - a, k * 3)
         left += b - a - fits
         sub = pairs[a:a + fits]
-        cars = r.allocate(o[a:a + fits], d[a:a + fits], k, car_limit(fits, k, 3), params[k])
+        cars = r.allocate(o[a:a + fits], d[a:a + fits], k, car_limit(fits, k, 3), params)
         if b - a > fits:
             assert np.all(counts[0, c0:c0 + k, K.BOARDED] == 3)   # all open cars full
         for j in range(k):
@@ -162,11 +167,12 @@ def test_sectors_from_floor_counts_equals_sectors_one_by_one(bp, k, limit):
     o = np.array([p[0] for p in pairs], dtype=np.int64)
     d = np.array([p[1] for p in pairs], dtype=np.int64)
     params = get_rule("sectors").params(building, group, k, len(pairs) / k)
+    cars = empty_cars(k, limit)
     one_by_one = np.full(len(pairs), -7, np.int64)
     by_counts = np.full(len(pairs), -7, np.int64)
-    sectors_in_order(o, d, k, limit, params, np.zeros(scratch_size(len(pairs), k), np.int64),
+    sectors_in_order(o, d, cars, params.table[k], np.zeros(scratch_size(len(pairs), k), np.int64),
                      one_by_one)
-    done = sectors_by_floor_counts(o, d, k, limit, params,
+    done = sectors_by_floor_counts(o, d, cars, params.table[k],
                                    np.zeros(scratch_size(len(pairs), k), np.int64), by_counts)
     assert done
     assert np.array_equal(one_by_one, by_counts)

@@ -15,7 +15,7 @@ import pytest
 from allocation.registry import rule_names
 from experiments import charts
 from experiments.sweep import demand_sweep
-from roundtrip.group_montecarlo import compare_rules
+from batchrounds.montecarlo import compare_rules
 
 from .report_context import HOLLIN, HOLLIN_GROUP, HOLLIN_YARD
 

@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from experiments.cli import main
-from experiments.sweep import parse_range
+from experiments.cli.options import parse_range
 from roundtrip.inputfile import InputError
 
 BUILDING = """

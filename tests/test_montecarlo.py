@@ -17,18 +17,23 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from roundtrip import _trip_kernel as K
+from roundtrip import schedule as K
 from roundtrip.building import Building, LiftGroup, Traffic
 from roundtrip.classical import (expected_stops_poisson, highest_reversal_floor_poisson,
                                  uppeak_calculation)
 from roundtrip.kinematics import flight_time_s, regime_boundaries_m
-from roundtrip.montecarlo import (PassengerSampler, flight_table_s, simulate_demand,
-                                  simulate_trips, time_trips)
+from roundtrip.montecarlo import PassengerSampler, simulate_demand, simulate_trips, time_trips
 from roundtrip.passengers import alias_table, od_matrix, passenger_counts
+from roundtrip.schedule import trip_timing
 
 from .reference_trip import reference_trip
 
 K_SIGMA = 4.0
+
+def flight_table_s(building, group):
+    """The flight-time table of the trip model [s]."""
+    return trip_timing(building, group).flight_s
+
 
 SLOW_GROUP = LiftGroup(cars=4, rated_load_persons=16, rated_speed_mps=1.0, acceleration_mps2=1.0,
                        jerk_mps3=1.5, door_open_s=1.8, door_close_s=2.9, start_delay_s=0.5,
@@ -91,12 +96,13 @@ def test_fused_sampling_kernel_equals_sampling_then_timing(mix):
     t = Traffic(10.0, *mix)
     g = replace(SLOW_GROUP, rated_load_persons=6)
     sampler = PassengerSampler(b, t)
-    flight = flight_table_s(b, g)
-    u, offsets = sampler.uniforms(np.random.default_rng(12), 7.5, 5_000, True)
+    timing = trip_timing(b, g)
+    stream = sampler.uniforms(np.random.default_rng(12), 7.5, 5_000, True)
+    offsets = stream.offsets
     assert sampler.lobby_origins_only == (mix[0] == 1.0)
-    fused = sampler.sampled_trips(g, flight, u, offsets)
+    fused = sampler.sampled_trips(timing, stream)
     orig, dest, offsets2 = sampler.draw(np.random.default_rng(12), 7.5, 5_000, True)
-    two_step = time_trips(b, g, orig, dest, offsets2, flight)
+    two_step = time_trips(b, g, orig, dest, offsets2, timing)
     assert np.array_equal(offsets, offsets2)
     assert np.array_equal(fused.rtt_s, two_step.rtt_s)
     assert np.array_equal(fused.counts, two_step.counts)

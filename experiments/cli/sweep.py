@@ -3,11 +3,12 @@ from __future__ import annotations
 
 from roundtrip.building import Scenario
 
-from .compare_command import parse_rules
-from .outputs import output_dir, write_atomic
-from .sweep import demand_sweep, parse_range
+from experiments.outputs import output_dir, write_atomic
+from experiments.sweep import demand_sweep
+from experiments.wording import CAUTION
+
+from .options import parse_range, parse_rules
 from .tables import dumps, grid_table
-from .wording import CAUTION
 
 
 def sweep_table(scenario: Scenario, args):
@@ -27,7 +28,7 @@ def run(args, scenario: Scenario) -> int:
     csv_path = write_atomic(out / "sweep.csv", table.to_csv(index=False))
     charts = []
     if not args.no_charts:
-        from .charts import sweep_charts
+        from experiments.charts import sweep_charts
         charts = sweep_charts(table, out, scenario.building.name)
     if args.json:
         print(dumps({"building": scenario.building.name, "csv": str(csv_path),

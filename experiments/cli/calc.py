@@ -2,28 +2,12 @@
 from __future__ import annotations
 
 from roundtrip.building import Scenario
-from roundtrip.classical import UppeakResult, demand_calculation, uppeak_calculation
-from roundtrip.inputfile import InputError
+from roundtrip.classical import UppeakResult
+
+from experiments.estimates import classical_result
+from experiments.wording import CAUTION
 
 from .tables import dumps, key_value_table
-from .wording import CAUTION
-
-
-def require_traffic(scenario: Scenario) -> None:
-    """Demand mode needs the [traffic] section: a clear input error when it is absent."""
-    if scenario.traffic is None:
-        raise InputError(["[traffic] is missing: demand mode needs "
-                          "traffic.arrival_rate_pct_5min; give it, or give --passengers P."],
-                         scenario.source)
-
-
-def classical_result(scenario: Scenario, passengers: float | None, poisson: bool) -> UppeakResult:
-    """Given-load mode when ``passengers`` is set, otherwise demand mode."""
-    if passengers is not None:
-        return uppeak_calculation(scenario.building, scenario.group, passengers, poisson,
-                                  traffic=scenario.traffic)
-    require_traffic(scenario)
-    return demand_calculation(scenario.building, scenario.group, scenario.traffic, poisson)
 
 
 def result_rows(r: UppeakResult) -> list[tuple[str, object, str]]:
@@ -67,13 +51,17 @@ def notes(r: UppeakResult) -> list[str]:
     return out
 
 
+def print_classical(r: UppeakResult, title: str) -> None:
+    print(key_value_table(result_rows(r), title))
+    for line in notes(r):
+        print("\n" + line)
+
+
 def run(args, scenario: Scenario) -> int:
     r = classical_result(scenario, args.passengers, args.poisson)
     if args.json:
         print(dumps({"building": scenario.building.name, **r.to_dict()}))
         return 0
-    title = f"{scenario.building.name}: classical up-peak calculation ({r.mode})"
-    print(key_value_table(result_rows(r), title))
-    for line in notes(r) + [CAUTION]:
-        print("\n" + line)
+    print_classical(r, f"{scenario.building.name}: classical up-peak calculation ({r.mode})")
+    print("\n" + CAUTION)
     return 0

@@ -3,11 +3,12 @@ from __future__ import annotations
 
 from roundtrip.building import Scenario
 
-from .compare_command import parse_rules
-from .sizing import default_criteria, size_group
-from .sweep import parse_range, progress_bar
+from experiments.progress import progress_bar
+from experiments.sizing import default_criteria, size_group
+from experiments.wording import CAUTION
+
+from .options import parse_range, parse_rules
 from .tables import dumps, grid_table
-from .wording import CAUTION
 
 
 def sizing(scenario: Scenario, args) -> dict:
@@ -16,8 +17,7 @@ def sizing(scenario: Scenario, args) -> dict:
         [scenario.group.rated_load_persons]
     speeds = parse_range(args.speeds, "--speeds", whole=False, low=1e-9) if args.speeds else \
         [scenario.group.rated_speed_mps]
-    from .cli import DEFAULT_RULES
-    rules = parse_rules(args.rules or DEFAULT_RULES)
+    rules = parse_rules(args.rules)
     criteria = default_criteria(scenario, args.interval_max, args.hc_min)
     total = len(cars) * len(loads) * len(speeds)
     with progress_bar(total, args.quiet or args.json, "sizing") as bar:

@@ -3,13 +3,14 @@ from __future__ import annotations
 
 from roundtrip.building import Scenario
 
-from .outputs import output_dir
+from experiments.outputs import output_dir
+from experiments.wording import CAUTION
+
 from .tables import dumps
-from .wording import CAUTION
 
 
 def run(args, scenario: Scenario) -> int:
-    from .report_job import run_job
+    from experiments.report_job import run_job
     out = output_dir(args.out)
     result = run_job(scenario, args.file, out, seed=args.seed, ci_target_pct=args.ci_target,
                      trials=args.trials, quiet=args.quiet or args.json, threads=args.threads)

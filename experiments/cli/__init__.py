@@ -1,59 +1,29 @@
-"""The `liftsort` command line.
+"""The `liftsort` command line: parsing and printing, nothing else.
 
-Each command's work lives in its own module (``experiments/*_command.py``),
+Each command lives in its own module (``experiments/cli/<command>.py``),
 imported only when that command runs, so that `liftsort calc` never loads
-numba, pandas or seaborn. Errors in input files or options print one
-paragraph and exit with status 2, without a traceback.
+numba, pandas or seaborn. The commands call the orchestration of
+:mod:`experiments` (which never imports this package) and print what it
+returns. Errors in input files or options print one paragraph and exit with
+status 2, without a traceback.
 """
 from __future__ import annotations
 
 import argparse
 import importlib
-import math
 import sys
-from importlib import resources
 
 from roundtrip import __version__
 from roundtrip.inputfile import InputError, load_scenario
 
+from .options import ci_type, number, passengers_type, seed_type, trials_type, whole
+
 EXIT_BAD_INPUT = 2
-DEFAULT_RULES = "random,sorted,sectors,fewest-stops"
 
 
-def demo_building_path():
-    """The built-in invented demo building's input file."""
-    return resources.files("experiments") / "data" / "demo_building.toml"
-
-
-# ------------------------------------------------------------ option types
-def _number(low: float, low_open: bool, what: str):
-    def parse(text: str) -> float:
-        try:
-            value = float(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a number; {what}") from None
-        if not math.isfinite(value) or value < low or (low_open and value == low):
-            raise argparse.ArgumentTypeError(f"{text} is out of range; {what}")
-        return value
-    return parse
-
-
-def _whole(low: int, what: str):
-    def parse(text: str) -> int:
-        try:
-            value = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number; {what}") from None
-        if value < low:
-            raise argparse.ArgumentTypeError(f"{text} is out of range; {what}")
-        return value
-    return parse
-
-
-passengers_type = _number(0.0, False, "P must be a number of passengers per trip >= 0 [persons]")
-trials_type = _whole(2, "N must be a whole number of trials >= 2")
-ci_type = _number(0.0, True, "PCT must be a percentage > 0")
-seed_type = _whole(0, "S must be a whole number >= 0")
+def _rules_help(names: str | None) -> str:
+    default = f"default: {names}" if names else "default: the registry's default rules"
+    return f"comma-separated allocation rules ({default}; `docs/rules.md` lists them all)"
 
 
 def _add_file(p: argparse.ArgumentParser) -> None:
@@ -84,11 +54,13 @@ def _add_run_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--seed", metavar="S", type=seed_type, default=2026,
                    help="seed of the random stream; the same seed gives the same numbers "
                         "(default 2026)")
-    p.add_argument("--threads", metavar="T", type=_whole(1, "T must be a whole number of threads >= 1"),
+    p.add_argument("--threads", metavar="T", type=whole(1, "T must be a whole number of threads >= 1"),
                    help="compute threads (default: all cores); results do not depend on it")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentParser:
+    """The parser; ``default_rule_names`` (from the registry) only for the help text."""
+    rules_help = _rules_help(default_rule_names)
     parser = argparse.ArgumentParser(
         prog="liftsort",
         description="Lift-traffic planning estimates: the classical up-peak calculation, "
@@ -113,7 +85,7 @@ def build_parser() -> argparse.ArgumentParser:
     calc.add_argument("--poisson", action="store_true",
                       help="use the Poisson-passenger forms of S and H")
     _add_json(calc)
-    calc.set_defaults(handler="experiments.calc_command")
+    calc.set_defaults(handler="experiments.cli.calc")
 
     sim = sub.add_parser(
         "simulate", help="Monte Carlo round trips of one car, with 95 %% confidence intervals",
@@ -127,7 +99,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_counts(sim)
     _add_run_options(sim)
     _add_json(sim)
-    sim.set_defaults(handler="experiments.simulate_command")
+    sim.set_defaults(handler="experiments.cli.simulate")
 
     cmp_ = sub.add_parser(
         "compare", help="compare allocation rules (conventional against destination grouping)",
@@ -135,10 +107,8 @@ def build_parser() -> argparse.ArgumentParser:
                     "numbers). A trial is one batch of cars x P passengers; gains are against "
                     "`random` (conventional control) with paired 95 %% intervals.")
     _add_file(cmp_)
-    cmp_.add_argument("--rules", metavar="LIST", default=DEFAULT_RULES,
-                      help="comma-separated allocation rules (default: random,sorted,sectors,"
-                           "fewest-stops; also: best, round-robin)")
-    cmp_.add_argument("--cars-open", metavar="K", type=_whole(1, "K must be a whole number of cars >= 1"),
+    cmp_.add_argument("--rules", metavar="LIST", help=rules_help)
+    cmp_.add_argument("--cars-open", metavar="K", type=whole(1, "K must be a whole number of cars >= 1"),
                       help="cars open to allocation at once, 1 ... cars (default: all cars)")
     cmp_.add_argument("--passengers", metavar="P", type=passengers_type,
                       help="mean passengers per car per round [persons] (default: the demand's "
@@ -146,7 +116,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_counts(cmp_)
     _add_run_options(cmp_)
     _add_json(cmp_)
-    cmp_.set_defaults(handler="experiments.compare_command")
+    cmp_.set_defaults(handler="experiments.cli.compare")
 
     sw = sub.add_parser(
         "sweep", help="every rule across a range of demand: one tidy CSV and charts",
@@ -162,9 +132,7 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("--cars-open", metavar="LIST",
                     help="cars open to allocation, a comma list (default: all cars); values "
                          "above a group's cars are skipped for that group")
-    sw.add_argument("--rules", metavar="LIST", default=DEFAULT_RULES,
-                    help="comma-separated allocation rules (default: random,sorted,sectors,"
-                         "fewest-stops)")
+    sw.add_argument("--rules", metavar="LIST", help=rules_help)
     sw.add_argument("--out", metavar="DIR", default="liftsort-out",
                     help="output folder for sweep.csv and the charts (default: liftsort-out)")
     sw.add_argument("--fixed", action="store_true", help="fixed passenger counts (default Poisson)")
@@ -172,7 +140,7 @@ def build_parser() -> argparse.ArgumentParser:
     sw.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(sw)
     _add_json(sw)
-    sw.set_defaults(handler="experiments.sweep_command")
+    sw.set_defaults(handler="experiments.cli.sweep")
 
     sz = sub.add_parser(
         "size", help="smallest group meeting interval and handling-capacity criteria, per rule",
@@ -183,9 +151,9 @@ def build_parser() -> argparse.ArgumentParser:
                     "handling capacity >= the file's demand (or 12 %%), common office practice "
                     "(CIBSE Guide D).")
     _add_file(sz)
-    sz.add_argument("--interval-max", metavar="S", type=_number(0.0, True, "S must be > 0 [s]"),
+    sz.add_argument("--interval-max", metavar="S", type=number(0.0, True, "S must be > 0 [s]"),
                     help="largest acceptable interval at design load [s] (default 30)")
-    sz.add_argument("--hc-min", metavar="PCT", type=_number(0.0, True, "PCT must be > 0 [%%]"),
+    sz.add_argument("--hc-min", metavar="PCT", type=number(0.0, True, "PCT must be > 0 [%%]"),
                     help="least 5-minute handling capacity [%% of population] (default: the "
                          "file's demand, else 12)")
     sz.add_argument("--cars", metavar="A:B", default="1:10",
@@ -194,13 +162,12 @@ def build_parser() -> argparse.ArgumentParser:
                     help="rated loads to try [persons], e.g. 13,16,21 (default: the file's)")
     sz.add_argument("--speeds", metavar="LIST",
                     help="rated speeds to try [m/s], e.g. 1.6,2.5,3.5 (default: the file's)")
-    sz.add_argument("--rules", metavar="LIST",
-                    help="allocation rules (default: random,sorted,sectors,fewest-stops)")
+    sz.add_argument("--rules", metavar="LIST", help=rules_help)
     sz.add_argument("--fixed", action="store_true", help="fixed passenger counts (default Poisson)")
     sz.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(sz)
     _add_json(sz)
-    sz.set_defaults(handler="experiments.size_command")
+    sz.set_defaults(handler="experiments.cli.size")
 
     rep = sub.add_parser(
         "report", help="the whole job as one self-contained HTML report with charts",
@@ -212,7 +179,7 @@ def build_parser() -> argparse.ArgumentParser:
     rep.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(rep)
     _add_json(rep)
-    rep.set_defaults(handler="experiments.report_command")
+    rep.set_defaults(handler="experiments.cli.report")
 
     demo = sub.add_parser(
         "demo", help="run the main job on the built-in invented demo building",
@@ -222,12 +189,17 @@ def build_parser() -> argparse.ArgumentParser:
                       help="where the report and charts go (default: liftsort-demo)")
     demo.add_argument("--seed", metavar="S", type=seed_type, default=2026,
                       help="seed of the random stream (default 2026)")
-    demo.set_defaults(handler="experiments.demo_command", file=None)
+    demo.set_defaults(handler="experiments.cli.demo", file=None)
     return parser
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    names = None
+    if "-h" in argv or "--help" in argv:        # only help pays for the registry's import
+        from allocation.registry import default_rules
+        names = ",".join(default_rules())
+    parser = build_parser(names)
     args = parser.parse_args(argv)
     try:
         scenario = load_scenario(args.file) if args.file is not None else None
@@ -238,7 +210,3 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_BAD_INPUT
     except BrokenPipeError:
         return 0
-
-
-if __name__ == "__main__":
-    sys.exit(main())

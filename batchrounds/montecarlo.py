@@ -3,16 +3,17 @@
 A trial is one batch, the passengers arriving during one round of the group:
 cars x P on average (Poisson, or fixed). Every rule allocates the very same
 batches (common random numbers), and each car's trip is timed by the trip
-model of :mod:`roundtrip._trip_kernel` (see :mod:`roundtrip._group_kernel` for
-the split into sub-batches when fewer cars are open to allocation than the
-group has).
+model of :mod:`roundtrip.schedule` (see :mod:`batchrounds._kernel` for the
+split into sub-batches when fewer cars are open to allocation than the group
+has).
 
 For each rule: round-trip time = mean over trials and cars of each car's
 round-trip time; interval = RTT / cars; handling capacity = 300 s x passengers
 carried per car trip / interval. Intervals are 95 % normal-theory intervals on
 the per-trial means (trials are independent; cars within a trial are not).
 
-Gains against ``random`` are ratios of means, with intervals by the delta
+Gains against the conventional baseline (the registry's baseline rule,
+``random``) are ratios of means, with intervals by the delta
 method on the per-trial values: paired (the same batches, the variance of the
 per-trial linearised difference) and, for contrast, unpaired (as if the runs
 were independent). The paired interval is the one to quote; common random
@@ -25,13 +26,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import _trip_kernel as K
-from .building import Building, LiftGroup, Traffic
-from .classical import average_waiting_time_s
-from .montecarlo import (Z95, Estimate, PassengerSampler, _check_run_options, _with_threads,
-                         flight_table_s, run_until)
+from allocation import contract as K
+from allocation.registry import Rule, baseline_rule, get_rule
+from roundtrip.building import Building, LiftGroup, Traffic
+from roundtrip.classical import average_waiting_time_s
+from roundtrip.montecarlo import (Z95, Estimate, PassengerSampler, check_run_options, run_until,
+                                  with_threads)
+from roundtrip.schedule import TripStream, TripTiming, trip_timing
 
-BASELINE = "random"
+from . import _kernel as G
 
 
 @dataclass(frozen=True)
@@ -131,7 +134,7 @@ class Comparison:
         return next(r for r in self.results if r.rule == rule)
 
     def to_dict(self) -> dict:
-        base = self.result(BASELINE)
+        base = self.results[0]
         return {
             "building": self.building,
             "cars": self.cars,
@@ -145,15 +148,22 @@ class Comparison:
         }
 
 
-def _params_table(rule, building, group, cars_open, passengers_per_car) -> np.ndarray:
-    """Row k: the rule's table for a sub-batch of k cars (the sizes this run uses)."""
-    sizes = {min(cars_open, group.cars - c0) for c0 in range(0, group.cars, cars_open)}
-    rows = {k: rule.params(building, group, k, passengers_per_car) for k in sizes}
-    width = max(r.size for r in rows.values())
-    table = np.zeros((group.cars + 1, width))
-    for k, r in rows.items():
-        table[k, :r.size] = r
-    return table
+def sub_batch_sizes(cars: int, cars_open: int) -> list[int]:
+    """The numbers of cars of the sub-batches a round is split into (k, ..., the rest)."""
+    return sorted({min(cars_open, cars - c0) for c0 in range(0, cars, cars_open)})
+
+
+def group_sample(rule: Rule, table: np.ndarray, sampler: PassengerSampler, timing: TripTiming,
+                 cars: int, cars_open: int, stream: TripStream) -> GroupSample:
+    """One rule on the batches of ``stream``: the one helper through which every caller
+    runs the group kernel."""
+    n = stream.offsets.size - 1
+    out = G.GroupOut(np.empty((n, cars)), np.empty((n, cars, K.N_COUNTS), dtype=np.int64),
+                     np.empty(n, dtype=np.int64))
+    blocks = max(1, min(n // 500 + 1, 64))
+    G.group_trips(rule.compiled, stream, sampler.alias, G.GroupLayout(int(cars), int(cars_open)),
+                  timing, table, blocks, out)
+    return GroupSample(out.rtt_s, out.counts, out.unallocated)
 
 
 def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_car: float, *,
@@ -175,17 +185,15 @@ def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_ca
     Other parameters as :func:`roundtrip.montecarlo.simulate_trips`; the
     adaptive run stops when every rule's RTT interval meets the target.
     """
-    from allocation.registry import get_rule
-    from . import _group_kernel as G
-
     if not (passengers_per_car >= 0 and math.isfinite(passengers_per_car)):
         raise ValueError(f"passengers = {passengers_per_car!r}: must be a finite number >= 0")
-    _check_run_options(trials, ci_target_pct, max_trials, threads)
+    check_run_options(trials, ci_target_pct, max_trials, threads)
     k = group.cars if cars_open is None else cars_open
     if not (isinstance(k, (int, np.integer)) and 1 <= k <= group.cars):
         raise ValueError(f"cars_open = {cars_open!r}: must be a whole number from 1 to "
                          f"cars = {group.cars}")
-    names = [BASELINE] + [r for r in dict.fromkeys(rules) if r != BASELINE]
+    base = baseline_rule()
+    names = [base] + [r for r in dict.fromkeys(rules) if r != base]
     chosen = [get_rule(r) for r in names]
     batch_mean = group.cars * passengers_per_car
     for rule in chosen:
@@ -197,28 +205,20 @@ def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_ca
                     f"fixed passenger counts and at most {rule.max_batch} passengers per "
                     f"sub-batch (cars open x passengers per car); here the sub-batch is "
                     f"{'unbounded (Poisson counts)' if poisson else f'up to {biggest}'}")
-    tables = [_params_table(r, building, group, k, passengers_per_car) for r in chosen]
+    sizes = sub_batch_sizes(group.cars, k)
+    tables = [r.table(building, group, sizes, passengers_per_car) for r in chosen]
     sampler = PassengerSampler(building, traffic)
-    flight = flight_table_s(building, group)
+    timing = trip_timing(building, group)
     rng = np.random.default_rng(seed)
     L = group.cars
 
     def chunk(n):
-        u, offsets = sampler.uniforms(rng, batch_mean, n, poisson)
-        out = []
-        for rule, table in zip(chosen, tables):
-            rtt = np.empty((n, L))
-            counts = np.empty((n, L, K.N_COUNTS), dtype=np.int64)
-            unalloc = np.empty(n, dtype=np.int64)
-            blocks = max(1, min(n // 500 + 1, 64))
-            G.group_trips(rule.compiled, u, offsets, sampler.alias_prob, sampler.alias_cell,
-                          sampler.cell_origin, sampler.cell_dest, L, k, group.rated_load_persons,
-                          table, flight, group.stop_overhead_s, group.transfer_in_s,
-                          group.transfer_out_s, blocks, rtt, counts, unalloc)
-            out.append(GroupSample(rtt, counts, unalloc))
+        stream = sampler.uniforms(rng, batch_mean, n, poisson)
+        out = [group_sample(rule, table, sampler, timing, L, k, stream)
+               for rule, table in zip(chosen, tables)]
         return np.column_stack([s.trial_rtt_s for s in out]), out
 
-    parts = _with_threads(threads, lambda: run_until(chunk, trials, ci_target_pct, max_trials))
+    parts = with_threads(threads, lambda: run_until(chunk, trials, ci_target_pct, max_trials))
     results = []
     for i, name in enumerate(names):
         results.append(RuleResult(name, GroupSample(

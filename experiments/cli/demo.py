@@ -3,23 +3,22 @@ from __future__ import annotations
 
 from roundtrip.inputfile import load_scenario
 
-from . import calc_command
-from .outputs import output_dir
-from .tables import grid_table, key_value_table
-from .wording import CAUTION
+from experiments.data import demo_building_path
+from experiments.estimates import classical_result
+from experiments.outputs import output_dir
+from experiments.wording import CAUTION
+
+from .calc import print_classical
+from .tables import grid_table
 
 
 def run(args, scenario=None) -> int:
-    from .cli import demo_building_path
-    from .report_job import run_job
+    from experiments.report_job import run_job
     path = demo_building_path()
     scenario = load_scenario(path)
-    r = calc_command.classical_result(scenario, None, False)
-    print(key_value_table(calc_command.result_rows(r),
-                          f"{scenario.building.name} (invented demo building): classical "
-                          f"up-peak calculation (demand mode)"))
-    for line in calc_command.notes(r):
-        print("\n" + line)
+    print_classical(classical_result(scenario, None, False),
+                    f"{scenario.building.name} (invented demo building): classical "
+                    f"up-peak calculation (demand mode)")
     out = output_dir(args.out)
     result = run_job(scenario, path, out, seed=args.seed, quiet=False)
     m = result["monte_carlo"]

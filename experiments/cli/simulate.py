@@ -2,32 +2,17 @@
 from __future__ import annotations
 
 from roundtrip.building import Scenario
-from roundtrip.inputfile import InputError
 
-from .calc_command import require_traffic
+from experiments.estimates import classical_result, monte_carlo_result
+from experiments.wording import CAUTION
+
 from .tables import dumps, grid_table
-from .wording import CAUTION
-
-
-def monte_carlo_result(scenario: Scenario, args):
-    from roundtrip.montecarlo import simulate_demand, simulate_trips
-    run = dict(poisson=not args.fixed, trials=args.trials, ci_target_pct=args.ci_target,
-               max_trials=args.max_trials, seed=args.seed, threads=args.threads)
-    if args.passengers is not None:
-        return simulate_trips(scenario.building, scenario.group, args.passengers,
-                              traffic=scenario.traffic, **run)
-    require_traffic(scenario)
-    return simulate_demand(scenario.building, scenario.group, scenario.traffic, **run)
 
 
 def run(args, scenario: Scenario) -> int:
-    from .calc_command import classical_result
-    try:
-        r = monte_carlo_result(scenario, args)
-    except InputError:
-        raise
-    except ValueError as exc:          # e.g. interfloor traffic with one populated floor
-        raise InputError([str(exc)], scenario.source) from None
+    r = monte_carlo_result(scenario, args.passengers, poisson=not args.fixed, trials=args.trials,
+                           ci_target_pct=args.ci_target, max_trials=args.max_trials,
+                           seed=args.seed, threads=args.threads)
     d = r.to_dict()
     if args.json:
         print(dumps(d))

@@ -1,0 +1,91 @@
+"""The estimates behind the command line, as plain functions returning frozen records.
+
+Each picks the mode a file and the options ask for (a given load, or the load
+the demand sets) and calls the model; printing is the command line's job
+(:mod:`experiments.cli`), which never does model work itself.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from roundtrip.building import Scenario
+from roundtrip.classical import UppeakResult, demand_calculation, uppeak_calculation
+from roundtrip.inputfile import InputError
+
+
+def require_traffic(scenario: Scenario) -> None:
+    """Demand mode needs the [traffic] section: a clear input error when it is absent."""
+    if scenario.traffic is None:
+        raise InputError(["[traffic] is missing: demand mode needs "
+                          "traffic.arrival_rate_pct_5min; give it, or give --passengers P."],
+                         scenario.source)
+
+
+def classical_result(scenario: Scenario, passengers: float | None, poisson: bool) -> UppeakResult:
+    """Given-load mode when ``passengers`` is set, otherwise demand mode."""
+    if passengers is not None:
+        return uppeak_calculation(scenario.building, scenario.group, passengers, poisson,
+                                  traffic=scenario.traffic)
+    require_traffic(scenario)
+    return demand_calculation(scenario.building, scenario.group, scenario.traffic, poisson)
+
+
+def monte_carlo_result(scenario: Scenario, passengers: float | None, *, poisson: bool,
+                       trials=None, ci_target_pct: float = 0.5, max_trials: int = 2_000_000,
+                       seed: int = 0, threads=None):
+    """One car's Monte Carlo round trips: at ``passengers``, or at the demand's fixed point."""
+    from roundtrip.montecarlo import simulate_demand, simulate_trips
+    run = dict(poisson=poisson, trials=trials, ci_target_pct=ci_target_pct,
+               max_trials=max_trials, seed=seed, threads=threads)
+    try:
+        if passengers is not None:
+            return simulate_trips(scenario.building, scenario.group, passengers,
+                                  traffic=scenario.traffic, **run)
+        require_traffic(scenario)
+        return simulate_demand(scenario.building, scenario.group, scenario.traffic, **run)
+    except InputError:
+        raise
+    except ValueError as exc:          # e.g. interfloor traffic with one populated floor
+        raise InputError([str(exc)], scenario.source) from None
+
+
+@dataclass(frozen=True)
+class ComparisonRun:
+    """Rules compared at one load, with the mode that chose the load."""
+
+    comparison: object                     # batchrounds.montecarlo.Comparison
+    mode: str                              # "given load" or "demand"
+    saturated_under_random: bool | None    # demand mode: conventional control saturated
+
+    def to_dict(self) -> dict:
+        return {**self.comparison.to_dict(), "mode": self.mode,
+                "saturated_under_random": self.saturated_under_random}
+
+
+def demand_passengers_per_car(scenario: Scenario, poisson: bool, seed: int, threads=None):
+    """P for demand mode: the Monte Carlo fixed point under conventional control."""
+    from roundtrip.montecarlo import simulate_demand
+    require_traffic(scenario)
+    r = simulate_demand(scenario.building, scenario.group, scenario.traffic, poisson=poisson,
+                        seed=seed, threads=threads)
+    return r.passengers_per_trip, r.saturated
+
+
+def comparison_run(scenario: Scenario, rules, passengers: float | None, *, cars_open=None,
+                   poisson: bool = True, trials=None, ci_target_pct: float = 0.5,
+                   max_trials: int = 1_000_000, seed: int = 0, threads=None) -> ComparisonRun:
+    """Allocation rules on common batches at ``passengers`` per car, or at the demand."""
+    from batchrounds.montecarlo import compare_rules
+    saturated = None
+    try:
+        if passengers is None:
+            passengers, saturated = demand_passengers_per_car(scenario, poisson, seed, threads)
+        c = compare_rules(scenario.building, scenario.group, rules, passengers,
+                          cars_open=cars_open, traffic=scenario.traffic, poisson=poisson,
+                          trials=trials, ci_target_pct=ci_target_pct, max_trials=max_trials,
+                          seed=seed, threads=threads)
+    except InputError:
+        raise
+    except ValueError as exc:
+        raise InputError([str(exc)], scenario.source) from None
+    return ComparisonRun(c, "demand" if saturated is not None else "given load", saturated)

@@ -174,16 +174,14 @@ def _compiled(signature, function: Callable, allocates: bool):
     runtime: the compiler then refuses any allocation in it (so a rule can keep
     nothing beyond the call), and the slices it takes of the engine's arrays cost
     no atomic reference counts, which would otherwise be a sixth of a batch's time
-    (``python -m experiments.bench``). Should numba stop accepting that option, the
-    rule is compiled with the runtime, correct but slower.
+    (``python -m experiments.bench``); see :mod:`roundtrip.compile_options`.
     """
     from numba import cfunc
-    if not allocates:
-        try:
-            return cfunc(signature, cache=True, _nrt=False)(function)
-        except (KeyError, TypeError, ValueError):       # the option is gone: use the default
-            pass
-    return cfunc(signature, cache=True)(function)
+
+    from roundtrip.compile_options import WITHOUT_RUNTIME
+    if allocates:
+        return cfunc(signature, cache=True)(function)
+    return cfunc(signature, cache=True, **WITHOUT_RUNTIME)(function)
 
 
 def _compile_batch_rule(name: str, function: Callable, allocates: bool):

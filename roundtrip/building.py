@@ -15,6 +15,7 @@ zone).
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -77,6 +78,9 @@ class LiftGroup:
     """A group of identical cars serving every floor of the building.
 
     All times in seconds, speeds in m/s, acceleration in m/s^2, jerk in m/s^3.
+    ``lobby_dwell_s`` is how long a car waits at the main lobby, from its first
+    passenger's boarding, before it leaves with fewer than its departure load
+    (the time-based peak simulation uses it).
     """
 
     cars: int
@@ -90,11 +94,18 @@ class LiftGroup:
     transfer_in_s: float = 1.2
     transfer_out_s: float = 1.2
     capacity_factor: float = 0.8
+    lobby_dwell_s: float = 10.0
 
     @property
     def design_load_persons(self) -> float:
         """Design car load, capacity_factor x rated load [persons]."""
         return self.capacity_factor * self.rated_load_persons
+
+    @property
+    def departure_load_persons(self) -> int:
+        """Passengers with whom a car leaves the lobby at once: the design load rounded up,
+        ceil(capacity_factor x rated load) [persons] (at least 1)."""
+        return max(1, math.ceil(round(self.capacity_factor * self.rated_load_persons, 9)))
 
     @property
     def stop_overhead_s(self) -> float:
@@ -114,15 +125,21 @@ class Traffic:
     Parameters
     ----------
     arrival_rate_pct_5min : float
-        Persons arriving in five minutes, % of the building population.
+        Persons arriving in five minutes, % of the building population: the design
+        demand (with a profile, its highest five minutes unless given).
     incoming, outgoing, interfloor : float
         Shares of the traffic mix (sum to 1).
+    profile_pct_5min : tuple of float, optional
+        The arrival rate of each successive 5-minute slot of the peak period [% of
+        population per 5 min]; the time-based peak simulation uses it in place of the
+        constant rate.
     """
 
     arrival_rate_pct_5min: float
     incoming: float = 1.0
     outgoing: float = 0.0
     interfloor: float = 0.0
+    profile_pct_5min: tuple[float, ...] | None = None
 
     def arrival_rate_persons_per_s(self, building: Building) -> float:
         """Arrival rate lambda = pct/100 x U / 300 s [persons/s]."""

@@ -26,9 +26,11 @@ The file has three sections; ``[traffic]`` is needed only for demand mode::
     transfer_in_s = 1.2           # optional, default 1.2
     transfer_out_s = 1.2          # optional, default 1.2
     capacity_factor = 0.8         # optional, default 0.8
+    lobby_dwell_s = 10.0          # optional, default 10 (peak simulation)
 
     [traffic]
-    arrival_rate_pct_5min = 12.0
+    arrival_rate_pct_5min = 12.0  # optional when profile_pct_5min is given
+    profile_pct_5min = [...]      # optional: the rate of each successive 5-minute slot
     incoming = 1.0                # shares; omitted ones are 0 (all omitted: 1, 0, 0)
     outgoing = 0.0
     interfloor = 0.0
@@ -113,9 +115,16 @@ _GROUP = {
                            required=False, default=1.2),
     "capacity_factor": _Key("number", "a fraction in (0, 1]", lambda x: 0 < x <= 1,
                             required=False, default=0.8),
+    "lobby_dwell_s": _Key("number", "a time from 0 to 120 [s] that a car waits at the lobby "
+                          "after its first passenger boards", lambda x: 0 <= x <= 120,
+                          required=False, default=10.0),
 }
 _TRAFFIC = {
-    "arrival_rate_pct_5min": _Key("number", "a rate > 0 [% of population per 5 min]", _positive),
+    "arrival_rate_pct_5min": _Key("number", "a rate > 0 [% of population per 5 min]", _positive,
+                                  required=False),
+    "profile_pct_5min": _Key("list", "a list of rates >= 0 [% of population per 5 min], one "
+                             "per successive 5-minute slot, at most 48", _non_negative,
+                             required=False),
     "incoming": _Key("number", "a share in [0, 1]", lambda x: 0 <= x <= 1, required=False),
     "outgoing": _Key("number", "a share in [0, 1]", lambda x: 0 <= x <= 1, required=False),
     "interfloor": _Key("number", "a share in [0, 1]", lambda x: 0 <= x <= 1, required=False),
@@ -271,7 +280,24 @@ def _building(b: dict, raw: dict, out: _Collector) -> Building | None:
 
 def _traffic(t: dict, raw: dict, out: _Collector) -> Traffic | None:
     shares = ("incoming", "outgoing", "interfloor")
-    if t["arrival_rate_pct_5min"] is None or any(k in raw and t[k] is None for k in shares):
+    profile = t["profile_pct_5min"]
+    if "profile_pct_5min" in raw and profile is not None:
+        if len(profile) > 48:
+            out.note(f"traffic.profile_pct_5min has {len(profile)} rates: give at most 48 "
+                     f"(four hours of 5-minute slots).")
+            return None
+        if max(profile) <= 0:
+            out.bad("traffic.profile_pct_5min", raw["profile_pct_5min"],
+                    "rates >= 0 [% of population per 5 min] with at least one above 0")
+            return None
+    if "arrival_rate_pct_5min" not in raw and "profile_pct_5min" not in raw:
+        out.note("traffic.arrival_rate_pct_5min is missing: give the design demand, a rate > 0 "
+                 "[% of population per 5 min], or traffic.profile_pct_5min, the rate of each "
+                 "5-minute slot.")
+        return None
+    if (("arrival_rate_pct_5min" in raw and t["arrival_rate_pct_5min"] is None)
+            or ("profile_pct_5min" in raw and profile is None)
+            or any(k in raw and t[k] is None for k in shares)):
         return None
     if not any(k in raw for k in shares):
         mix = (1.0, 0.0, 0.0)
@@ -281,7 +307,8 @@ def _traffic(t: dict, raw: dict, out: _Collector) -> Traffic | None:
         out.note(f"traffic.incoming + traffic.outgoing + traffic.interfloor = "
                  f"{mix[0]:g} + {mix[1]:g} + {mix[2]:g} = {sum(mix):g}: the shares must sum to 1.")
         return None
-    return Traffic(t["arrival_rate_pct_5min"], *mix)
+    rate = t["arrival_rate_pct_5min"] if "arrival_rate_pct_5min" in raw else max(profile)
+    return Traffic(rate, *mix, profile_pct_5min=tuple(profile) if profile is not None else None)
 
 
 def load_scenario(path: str | Path) -> Scenario:

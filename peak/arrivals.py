@@ -12,8 +12,9 @@ statistics property of the Poisson process), each with a cell drawn from p by
 the alias method.
 
 The stream of one replication, from its own ``numpy.random.Generator``:
-first, stretch by stretch, the count and then the arrival instants; then one
-uniform per passenger, in time order, for their cell. The same generator state
+first, stretch by stretch (a stretch is a longest run of constant demand), the
+count and then the arrival instants; then one uniform per passenger, in time
+order, for their cell. The same generator state
 gives the same arrivals on any machine and thread count.
 """
 from __future__ import annotations
@@ -104,7 +105,13 @@ def peak_period(building: Building, traffic: Traffic, *, minutes: float | None =
     tail_pct = rates[min(n_slots - 1, len(rates) - 1)] if profile is not None else rates[0]
     if tail_minutes > 0:
         stretches.append(Stretch(t_end, t_end + 60.0 * tail_minutes, tail_pct * to_rate))
-    return PeakPeriod(tuple(stretches), w0, t_end)
+    merged = [stretches[0]]                       # one stretch per constant rate
+    for s in stretches[1:]:
+        if s.rate_persons_per_s == merged[-1].rate_persons_per_s:
+            merged[-1] = Stretch(merged[-1].start_s, s.end_s, s.rate_persons_per_s)
+        else:
+            merged.append(s)
+    return PeakPeriod(tuple(merged), w0, t_end)
 
 
 def draw_arrivals(rng: np.random.Generator, period: PeakPeriod, sampler):

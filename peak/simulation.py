@@ -307,7 +307,8 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
             break
         worst = 0.0
         for control in chosen:
-            w = S.Interval.of([f["average_waiting_time_s"] for f in figs[control.name]])
+            w = S.Interval.ratio([f["_sums"]["wait"] for f in figs[control.name]],
+                                 [f["_sums"]["n"] for f in figs[control.name]])
             target = max(ci_target_pct / 100.0 * abs(w.mean), CI_FLOOR_S)
             worst = max(worst, (w.ci95 / target) ** 2 if math.isfinite(w.ci95) else 4.0)
         if worst <= 1.0:

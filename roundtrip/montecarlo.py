@@ -92,7 +92,11 @@ class PassengerSampler:
         """(origins, destinations) of the passengers that ``uniforms`` pick."""
         orig = np.empty(uniforms.size, dtype=np.int64)
         dest = np.empty(uniforms.size, dtype=np.int64)
-        K.sample_cells_parallel(uniforms, self.alias, _blocks(uniforms.size // 8), orig, dest)
+        blocks = _blocks(uniforms.size // 8)
+        if blocks == 1:                   # too few to be worth the threads
+            K.sample_cells(uniforms, self.alias, orig, dest)
+        else:
+            K.sample_cells_parallel(uniforms, self.alias, blocks, orig, dest)
         return orig, dest
 
     def draw(self, rng: np.random.Generator, mean_passengers: float, n_trials: int,

@@ -14,7 +14,11 @@ figures travel between machines better than seconds do:
       second process with the cache warm, and a converged demand-mode estimate
       (0.5 % interval) with a warm cache;
 (vi)  with the allocation rules: trips per second per rule for a 4-car batch of the
-      reference case, and its fraction of the random-number bound.
+      reference case, and its fraction of the random-number bound;
+(vii) the peak simulation: simulated passengers per second on one thread for the demo
+      building at 12 % of its population per 5 minutes, for conventional control and for
+      `sorted` with delayed allocation - the event loop alone (arrivals drawn
+      beforehand), and whole replications (drawing the arrivals, the loop and the figures).
 """
 from __future__ import annotations
 
@@ -124,6 +128,39 @@ def rule_figures(building, group, P, n_batches, bound):
     return out
 
 
+def peak_figures(replications: int = 40) -> dict:
+    """Simulated passengers per second of the peak simulation on one thread (see (vii)):
+    the event loop alone on arrivals drawn beforehand, and whole replications (drawing the
+    arrivals, the loop, the per-replication figures and the slot table)."""
+    from experiments.data import demo_building_path
+    from peak import statistics as S
+    from peak.arrivals import peak_period
+    from peak.simulation import arrival_streams, resolve_controls, run_rows
+    from roundtrip.inputfile import load_scenario
+
+    scenario = load_scenario(demo_building_path())
+    b, g, traffic = scenario.building, scenario.group, scenario.traffic
+    period = peak_period(b, traffic)
+    streams = arrival_streams(b, traffic, period, 1, 0, replications)
+    n = sum(t.size for t, _ in streams)
+    out = {"peak_passengers_per_replication": n / replications}
+    for control in resolve_controls(["sorted"]):             # conventional, then sorted
+        run_rows(b, g, control, streams[:2])                  # compiled, tables made
+
+        def whole():
+            fresh = arrival_streams(b, traffic, period, 2, 0, replications)
+            for (t, _), (rows, trips) in zip(fresh, run_rows(b, g, control, fresh)):
+                S.replication_figures(t, rows, trips, period.measure_start_s,
+                                      period.measure_end_s, b.total_population, g.door_open_s)
+                S.slot_figures(t, rows, period.measure_start_s, period.measure_end_s)
+        loop = n / best_of(lambda: run_rows(b, g, control, streams), 3)
+        out[f"peak_{control.name}_loop_passengers_per_s_1_thread"] = loop
+        out[f"peak_{control.name}_replication_passengers_per_s_1_thread"] = n / best_of(whole, 3)
+    out["peak_conventional_simulated_hour_ms"] = 1e3 * (n / replications) / out[
+        "peak_conventional_replication_passengers_per_s_1_thread"] * 3600.0 / period.measured_s
+    return out
+
+
 def _child_time(code: str, cache_dir: str) -> float:
     env = dict(os.environ, NUMBA_CACHE_DIR=cache_dir)
     t = time.perf_counter()
@@ -188,6 +225,7 @@ def main(argv=None) -> dict:
 
     numba.set_num_threads(1)
     figures.update(rule_figures(b, g, P, n // 4, bound))
+    figures.update(peak_figures())
     numba.set_num_threads(threads)
 
     width = max(len(k) for k in figures)

@@ -89,3 +89,18 @@ def comparison_run(scenario: Scenario, rules, passengers: float | None, *, cars_
     except ValueError as exc:
         raise InputError([str(exc)], scenario.source) from None
     return ComparisonRun(c, "demand" if saturated is not None else "given load", saturated)
+
+
+def peak_study(scenario: Scenario, controls, *, window_s: float | None = None,
+               minutes: float | None = None, warmup_minutes: float = 5.0,
+               replications: int | None = None, seed: int = 0, threads=None):
+    """The peak simulation of the file's building under each control (peak.simulation)."""
+    from peak.simulation import DEFAULT_WINDOW_S, simulate_peak
+    require_traffic(scenario)
+    try:
+        return simulate_peak(scenario.building, scenario.group, scenario.traffic, controls,
+                             window_s=DEFAULT_WINDOW_S if window_s is None else window_s,
+                             minutes=minutes, warmup_minutes=warmup_minutes,
+                             replications=replications, seed=seed, threads=threads)
+    except ValueError as exc:
+        raise InputError([str(exc)], scenario.source) from None

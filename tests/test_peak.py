@@ -131,6 +131,25 @@ def test_same_seed_same_rows_on_one_and_two_threads():
                 np.testing.assert_array_equal(r1[key], r2[key])
 
 
+def test_a_run_worked_by_hand():
+    """docs/peak_model.md, "A run worked by hand": one car of rated load 2 (departure load
+    2), A at 1 s for floor 2, B at 4 s for floor 3: no waits, the trip leaves at 8.6 s, A out
+    at 20.767 s, B at 32.333 s, the car back at 48.4 s."""
+    building = Building("hand", (4.0, 3.5, 3.5), (1.0, 1.0, 1.0))
+    group = LiftGroup(cars=1, rated_load_persons=2, rated_speed_mps=1.0, acceleration_mps2=1.0,
+                      jerk_mps3=1.5, door_open_s=1.8, door_close_s=2.9, start_delay_s=0.5,
+                      capacity_factor=1.0)
+    arr = (np.array([1.0, 4.0]), np.array([2, 3], dtype=np.int64))
+    (rows, trips), = run_rows(building, group, resolve_controls([])[0], [arr])
+    assert rows["ready_s"].tolist() == [1.0, 4.0]
+    assert rows["board_s"].tolist() == [1.0, 4.0]
+    assert rows["alight_s"] == pytest.approx([20.7667, 32.3333], abs=1e-4)
+    assert trips["depart_s"][0] == pytest.approx(8.6, abs=1e-12)
+    assert trips["return_s"][0] == pytest.approx(48.4, abs=1e-9)
+    assert trips["load"][0] == 2
+    assert trips["open_s"][1] == pytest.approx(50.2, abs=1e-9)
+
+
 # ---------------------------------------------------------------- queueing theory
 def _one_car_queue(floors: int):
     rises = tuple([4.0] + [3.5] * (floors - 1))

@@ -264,7 +264,7 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
                   window_s: float = DEFAULT_WINDOW_S, minutes: float | None = None,
                   warmup_minutes: float = 5.0, replications: int | None = None, seed: int = 0,
                   ci_target_pct: float = CI_TARGET_PCT, max_replications: int = MAX_REPLICATIONS,
-                  threads: int | None = None) -> PeakStudy:
+                  threads: int | None = None, slots: bool = True) -> PeakStudy:
     """The peak simulation of ``group`` in ``building`` under each control.
 
     Parameters
@@ -283,13 +283,15 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
         ``ci_target_pct`` % (or 0.25 s, whichever is larger) or ``max_replications``.
     seed : int
         Seed of the ``SeedSequence`` whose children give the replications.
+    slots : bool
+        Also make the table per 5-minute slot (the charts need it; a search does not).
     """
     from allocation.registry import peak_controls
     chosen = resolve_controls(peak_controls() if controls is None else controls)
     period = peak_period(building, traffic, minutes=minutes, warmup_minutes=warmup_minutes)
     _check(building, group, traffic, chosen, window_s, period, replications)
     figs = {c.name: [] for c in chosen}
-    slots = {c.name: [] for c in chosen}
+    slots_of = {c.name: [] for c in chosen}
     done = 0
     want = replications or FIRST_REPLICATIONS
     while True:
@@ -300,8 +302,9 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
                 figs[control.name].append(S.replication_figures(
                     t, rows, trips, period.measure_start_s, period.measure_end_s,
                     building.total_population, group.door_open_s))
-                slots[control.name].append(S.slot_figures(t, rows, period.measure_start_s,
-                                                          period.measure_end_s))
+                if slots:
+                    slots_of[control.name].append(S.slot_figures(t, rows, period.measure_start_s,
+                                                                 period.measure_end_s))
         done = want
         if replications is not None or done >= max_replications:
             break
@@ -314,7 +317,7 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
         if worst <= 1.0:
             break
         want = int(min(max_replications, max(done + 5, math.ceil(done * worst * 1.1))))
-    runs = tuple(ControlRun(c, tuple(figs[c.name]), tuple(slots[c.name]),
+    runs = tuple(ControlRun(c, tuple(figs[c.name]), tuple(slots_of[c.name]),
                             S.summarise(figs[c.name])) for c in chosen)
     return PeakStudy(building.name, group.cars, group.departure_load_persons, group.lobby_dwell_s,
                      float(window_s), period, traffic.arrival_rate_pct_5min,

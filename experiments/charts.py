@@ -40,9 +40,10 @@ def _is_baseline(rule: str) -> bool:
 DEMAND_LABEL = "demand [% of population per 5 min]"
 
 # Fixed rule -> index into seaborn's "colorblind" palette (None: the baseline's grey).
-_RULE_COLOUR_INDEX = {"random": None, "sorted": 0, "sectors": 1, "fewest-stops": 2,
-                      "best": 4, "round-robin": 3}
-_SPARE_COLOUR_INDEX = (5, 9, 6, 8)
+_RULE_COLOUR_INDEX = {"random": None, "conventional": None, "sorted": 0, "sectors": 1,
+                      "fewest-stops": 2, "best": 4, "round-robin": 3, "same-floor-first": 5,
+                      "least-added-time": 9, "earliest-leaving": 6}
+_SPARE_COLOUR_INDEX = (7, 8)
 _BASELINE_COLOUR = "#4d4d4d"
 _MARKERS = {"random": "o", "sorted": "s", "sectors": "^", "fewest-stops": "D", "best": "v",
             "round-robin": "P"}

@@ -94,6 +94,16 @@ def meets(run, base, criterion: ServiceCriterion) -> tuple[bool, list[str]]:
 
 
 @dataclass(frozen=True)
+class Tried:
+    """One demand tried in the search, for one control."""
+
+    demand_pct_5min: float
+    meets: bool
+    reasons: tuple
+    figures: dict
+
+
+@dataclass(frozen=True)
 class CapacityAtCriterion:
     """The highest demand at which a control meets the criterion."""
 
@@ -101,7 +111,7 @@ class CapacityAtCriterion:
     handling_capacity_pct_5min: float | None      # None: not even at the lowest demand tried
     criterion: ServiceCriterion
     fails_below: bool                              # it fails at some lower demand tried too
-    tried: tuple = field(default=(), repr=False)   # (demand, meets, reasons)
+    tried: tuple = field(default=(), repr=False)   # Tried, in the order tried
 
     def to_dict(self) -> dict:
         return {"control": self.control, "basis": "peak",
@@ -125,8 +135,20 @@ def _evaluate(scenario: Scenario, controls, pct, criterion, *, seed, replication
                               controls, window_s=window_s, minutes=minutes,
                               replications=replications, seed=seed, slots=False)
         base = study.runs[0]
-        cache[key] = {r.control.name: meets(r, base, criterion) for r in study.runs}
+        cache[key] = {r.control.name: (*meets(r, base, criterion), _figures(r)) for r in study.runs}
     return cache[key]
+
+
+def _figures(run) -> dict:
+    """The figures a chart of the search draws: means and 95 % half-widths."""
+    s = run.summary
+    return {"average_waiting_time_s": s["average_waiting_time_s"].mean,
+            "average_waiting_time_ci95_s": s["average_waiting_time_s"].ci95,
+            "waiting_time_p95_s": s["waiting_time_p95_s"].mean,
+            "average_time_to_destination_s": s["average_time_to_destination_s"].mean,
+            "average_time_to_destination_ci95_s": s["average_time_to_destination_s"].ci95,
+            "handling_capacity_pct_5min": s["handling_capacity_pct_5min"].mean,
+            "saturated": run.saturated}
 
 
 def capacity_at_criterion(scenario: Scenario, controls, criterion: ServiceCriterion, *,
@@ -160,8 +182,8 @@ def capacity_at_criterion(scenario: Scenario, controls, criterion: ServiceCriter
         if on_step is not None:
             on_step()
         for n in names:
-            ok, why = result[n]
-            tried[n].append((float(pct), ok, tuple(why)))
+            ok, why, figs = result[n]
+            tried[n].append(Tried(float(pct), ok, tuple(why), figs))
             if ok:
                 passing[n].append(float(pct))
                 failing_run[n] = 0
@@ -178,15 +200,15 @@ def capacity_at_criterion(scenario: Scenario, controls, criterion: ServiceCriter
         hi = lo + grid_step_pct
         while hi - lo > tolerance_pct:
             mid = 0.5 * (lo + hi)
-            ok, why = _evaluate(scenario, names, mid, criterion, **run)[n]
-            tried[n].append((float(mid), ok, tuple(why)))
+            ok, why, figs = _evaluate(scenario, names, mid, criterion, **run)[n]
+            tried[n].append(Tried(float(mid), ok, tuple(why), figs))
             if on_step is not None:
                 on_step()
             if ok:
                 lo = mid
             else:
                 hi = mid
-        fails_below = any(not ok for pct, ok, _ in tried[n] if pct < lo)
+        fails_below = any(not t.meets for t in tried[n] if t.demand_pct_5min < lo)
         out.append(CapacityAtCriterion(n, float(lo), criterion, fails_below, tuple(tried[n])))
     return out
 

@@ -302,3 +302,142 @@ def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *
             diff, ci = paired_ttd_difference(study.run(control), study.runs[0])
             steps.append(SensitivityStep(name, label, gain, diff, ci))
     return steps
+
+
+# ------------------------------------------------------------------ the decision
+@dataclass(frozen=True)
+class Figure:
+    """A destination-control figure with its basis: ``peak`` (simulated in time),
+    ``realisable-bound`` or ``ideal-bound`` (the round-trip Monte Carlo of batches)."""
+
+    name: str
+    value: float | None
+    ci95: float | None
+    unit: str
+    basis: str
+
+    def to_dict(self) -> dict:
+        return {"name": self.name, "value": self.value, "ci95": self.ci95, "unit": self.unit,
+                "basis": self.basis}
+
+
+@dataclass(frozen=True)
+class Decision:
+    """Everything the verdict rests on, each destination-control figure labelled."""
+
+    building: str
+    demand_pct_5min: float
+    destination_control: str
+    criterion: ServiceCriterion
+    study: object                  # peak.simulation.PeakStudy at the file's demand
+    capacities: tuple              # CapacityAtCriterion: conventional, destination control
+    bounds: tuple                  # Figure: realisable-bound, ideal-bound
+    sensitivity: tuple             # SensitivityStep
+    seed: int
+
+    def capacity(self, control: str) -> float | None:
+        return next(c.handling_capacity_pct_5min for c in self.capacities if c.control == control)
+
+    @property
+    def gain_pct_5min(self) -> float | None:
+        """Destination control's handling capacity at the criterion less conventional's."""
+        a, b = self.capacity(self.destination_control), self.capacity("conventional")
+        return None if a is None or b is None else a - b
+
+    def ttd_difference(self):
+        return paired_ttd_difference(self.study.run(self.destination_control), self.study.runs[0])
+
+    def verdict(self) -> dict:
+        """The answer in words, with its margin, from the peak-simulated figures."""
+        conv, dc = self.capacity("conventional"), self.capacity(self.destination_control)
+        demand = self.demand_pct_5min
+        name = self.destination_control
+        crit = self.criterion.describe()
+        fmt = (lambda x: "no demand tried" if x is None else f"{x:.1f} %")
+        if conv is not None and conv >= demand:
+            worth = False
+            text = (f"Destination control is not needed to meet the demand: conventional "
+                    f"control meets the service criterion ({crit}) up to {conv:.1f} % of the "
+                    f"population per 5 minutes, above the design demand of {demand:g} % "
+                    f"(margin {conv - demand:+.1f} points); destination control ('{name}') "
+                    f"meets it up to {fmt(dc)}.")
+        elif dc is not None and dc >= demand:
+            worth = True
+            text = (f"Destination control is worth specifying here: at the design demand of "
+                    f"{demand:g} % of the population per 5 minutes, conventional control fails "
+                    f"the service criterion ({crit}; it meets it only up to {fmt(conv)}), "
+                    f"while destination control ('{name}') meets it up to {dc:.1f} % "
+                    f"(margin {dc - demand:+.1f} points over the demand).")
+        else:
+            worth = False
+            text = (f"Neither control meets the service criterion ({crit}) at the design demand "
+                    f"of {demand:g} % of the population per 5 minutes with this group: "
+                    f"conventional control meets it up to {fmt(conv)}, destination control "
+                    f"('{name}') up to {fmt(dc)}; the group itself needs changing (see the "
+                    f"sizing).")
+        return {"worth_specifying": worth, "text": text, "basis": "peak",
+                "margin_pct_5min": (None if dc is None else dc - demand),
+                "gain_pct_5min": self.gain_pct_5min}
+
+    def to_dict(self) -> dict:
+        diff, ci = self.ttd_difference()
+        return {"building": self.building, "demand_pct_5min": self.demand_pct_5min,
+                "destination_control": self.destination_control,
+                "criterion": self.criterion.to_dict(), "verdict": self.verdict(),
+                "capacity_at_criterion": [c.to_dict() for c in self.capacities],
+                "time_to_destination_difference_s": {"value": diff, "ci95": ci,
+                                                     "basis": "peak"},
+                "bounds": [b.to_dict() for b in self.bounds],
+                "sensitivity": [{"input": s.input, "step": s.step,
+                                 "hc_gain_pct_5min": s.hc_gain_pct_5min,
+                                 "time_to_destination_difference_s": s.ttd_difference_s,
+                                 "time_to_destination_difference_ci95_s": s.ttd_difference_ci95_s,
+                                 "basis": "peak"} for s in self.sensitivity],
+                "seed": self.seed}
+
+
+def round_trip_bounds(scenario: Scenario, rule: str, cars_open: int, *, seed: int = 0,
+                      trials: int | None = None) -> tuple:
+    """Destination grouping's handling capacity at the design load by the round-trip Monte
+    Carlo of batches: with ``cars_open`` cars sharing each allocation (the realisable bound:
+    cars of one allocation leave together) and with every car open and the whole round
+    known (the ideal bound) [% of population per 5 min]."""
+    from batchrounds.montecarlo import compare_rules
+    g = scenario.group
+    out = []
+    for k, basis in ((min(cars_open, g.cars), "realisable-bound"), (g.cars, "ideal-bound")):
+        c = compare_rules(scenario.building, g, [rule], g.design_load_persons, cars_open=k,
+                          traffic=scenario.traffic, trials=trials, seed=seed)
+        r = c.to_dict()["rules"][-1]
+        out.append(Figure(f"handling capacity at design load, {rule}, {k} of {g.cars} cars open",
+                          r["handling_capacity_pct_5min"],
+                          r.get("handling_capacity_ci95_pct", None), "% of population per 5 min",
+                          basis))
+    return tuple(out)
+
+
+def decide(scenario: Scenario, destination_control: str, criterion: ServiceCriterion, *,
+           cars_open: int, bound_rule: str = "sorted", seed: int = 0,
+           replications: int = DECISION_REPLICATIONS, window_s: float = 5.0,
+           minutes: float = 60.0, with_sensitivity: bool = True, on_step=None) -> Decision:
+    """The decision for the file's building: the peak simulation at the design demand, each
+    control's handling capacity at the criterion, the two round-trip bounds, and the
+    sensitivity of the decision figures."""
+    from peak.simulation import simulate_peak
+    t = scenario.traffic
+    study = simulate_peak(scenario.building, scenario.group, t, [destination_control],
+                          window_s=window_s, minutes=minutes, replications=replications,
+                          seed=seed)
+    if on_step is not None:
+        on_step()
+    caps = tuple(capacity_at_criterion(scenario, [destination_control], criterion, seed=seed,
+                                       replications=replications, window_s=window_s,
+                                       minutes=minutes, on_step=on_step))
+    bounds = round_trip_bounds(scenario, bound_rule, cars_open, seed=seed)
+    steps = ()
+    if with_sensitivity:
+        steps = tuple(sensitivity(scenario, destination_control, criterion, seed=seed,
+                                  replications=replications, window_s=window_s,
+                                  minutes=minutes, base=caps, on_step=on_step))
+    return Decision(scenario.building.name, t.arrival_rate_pct_5min, destination_control,
+                    criterion, study, caps, bounds, steps, int(seed))

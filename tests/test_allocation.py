@@ -537,16 +537,6 @@ def test_worked_example_rule_performs_like_conventional(office_comparisons):
     assert abs(r["rtt_gain_pct_vs_random"]) < 4 * se + 1e-9
 
 
-def test_same_seed_same_comparison_on_one_and_two_threads():
-    a = compare_rules(OFFICE, OFFICE_GROUP, ["sorted"], 9.0, traffic=Traffic(10.0, 0.5, 0.3, 0.2),
-                      trials=3000, seed=4, threads=1)
-    b = compare_rules(OFFICE, OFFICE_GROUP, ["sorted"], 9.0, traffic=Traffic(10.0, 0.5, 0.3, 0.2),
-                      trials=3000, seed=4, threads=2)
-    for x, y in zip(a.results, b.results):
-        assert np.array_equal(x.sample.rtt_s, y.sample.rtt_s)
-        assert np.array_equal(x.sample.counts, y.sample.counts)
-
-
 # ---------------------------------------------------------------- command line
 def test_compare_json_has_the_contract_keys(tmp_path, capsys):
     f = tmp_path / "b.toml"

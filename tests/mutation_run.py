@@ -21,15 +21,17 @@ the registered rule bodies (``@register``), and no module-level constants such a
 de Bruijn table. Those are guarded by the exact checks against the plain trip twin and
 the rules written out by hand in the tests (and by hand-planted bugs). The kernels stay
 compiled (numba's JIT on): a mutant of plain Python code needs no recompilation, and
-the statistical tests keep their speed. ``NUMBA_NUM_THREADS=1`` is set because mutmut
-forks a worker per mutant from a process that has run the kernels, and numba's thread
-pool is not to be inherited across a fork.
+the statistical tests keep their speed. Workers are forked from mutmut's fork server
+(``process_isolation = "forkserver"``), which has imported the tests but run no kernel:
+a worker forked from a process whose numba thread pool has run dies on SIGTERM at its
+first parallel kernel (mutmut calls that "suspicious"). ``NUMBA_NUM_THREADS=1`` keeps
+each worker to one core.
 
 Prints every surviving mutant (with ``mutmut show NAME`` its diff), the ones no test
 reaches, and the survival rate: survivors / mutants checked by at least one test,
 equivalent mutants (listed below, each with why) left out of the rate. "Suspicious"
-mutants are those whose test run ended abnormally (a signal, not a pass); they are
-counted with the killed ones and listed.
+mutants are those whose test run ended on a signal (not a pass); they are counted with
+the killed ones and their number printed.
 """
 from __future__ import annotations
 

@@ -340,7 +340,14 @@ def simulate_demand(building: Building, group: LiftGroup, traffic: Traffic, *,
     load (capacity_factor x rated load) the demand would still need more,
     lambda RTT(P_design) / L > P_design, the group is saturated and the
     estimate is given at the design load.
+
+    ``max_iterations`` (a whole number >= 1) caps the Monte Carlo steps after
+    the classical start; when the last of them has not settled, the result is
+    that last iterate with ``converged=False``.
     """
+    if not (isinstance(max_iterations, (int, np.integer)) and not isinstance(max_iterations, bool)
+            and max_iterations >= 1):
+        raise ValueError(f"max_iterations = {max_iterations!r}: must be a whole number >= 1")
     lam = traffic.arrival_rate_persons_per_s(building)
     p_design = group.design_load_persons
     run = dict(traffic=traffic, poisson=poisson, trials=trials, ci_target_pct=ci_target_pct,

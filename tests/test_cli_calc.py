@@ -165,15 +165,17 @@ def test_no_file_argument_exits_2(capsys):
 
 
 # ------------------------------------------------------------- demo and help
-def test_demo_prints_a_table(capsys):
-    # README: `liftsort demo` runs the main job on the invented demo building.
-    rc, out, err = run(capsys, "demo")
+def test_demo_prints_a_table(capsys, tmp_path):
+    # README: `liftsort demo` runs the main job on the invented demo building (here
+    # into a temporary folder: no test writes into the working directory).
+    rc, out, err = run(capsys, "demo", "--out", tmp_path / "demo")
     assert rc == 0 and err == ""
     assert "Larkspur Exchange" in out
     lines = out.splitlines()
     assert set(lines[1]) == {"-"}                  # the table's title rule
     for label in ("round-trip time RTT", "interval INT", "handling capacity", "car load"):
         assert any(line.startswith(label) for line in lines)
+    assert (tmp_path / "demo" / "report.html").is_file()
 
 
 def test_main_help_mentions_units(capsys):

@@ -98,6 +98,73 @@ def test_size_finds_the_smallest_group_and_says_when_none(building_file, capsys)
                for x in none)
 
 
+def brute_force_designs(scenario, rules, cars, loads, speeds, interval_max_s, hc_min_pct,
+                        trials, seed):
+    """The smallest design of every rule by brute force: every candidate of the grid run
+    (all rules on common batches, as `size` runs them), then, among those meeting both
+    criteria, the first in the stated order: fewest cars, then the smallest rated load,
+    then the slowest rated speed. With a fixed trial count a rule's figures do not
+    depend on which other rules share its batches."""
+    import itertools
+    from dataclasses import replace
+
+    from batchrounds.montecarlo import compare_rules
+    meets = {}
+    for c, q, v in itertools.product(cars, loads, speeds):
+        g = replace(scenario.group, cars=c, rated_load_persons=q, rated_speed_mps=v)
+        d = compare_rules(scenario.building, g, rules, g.design_load_persons,
+                          traffic=scenario.traffic, trials=trials, seed=seed).to_dict()
+        for r in d["rules"]:
+            meets[(r["rule"], c, q, v)] = (r["interval_s"] <= interval_max_s
+                                           and r["handling_capacity_pct_5min"] >= hc_min_pct,
+                                           r["interval_s"], r["handling_capacity_pct_5min"])
+    designs = {}
+    for rule in rules:
+        passing = [key[1:] for key, (ok, *_) in meets.items() if key[0] == rule and ok]
+        designs[rule] = min(passing) if passing else None       # (cars, load, speed) order
+    return designs, meets
+
+
+@pytest.mark.parametrize("hc_min", [None, 25.0], ids=["file's demand", "25 %"])
+def test_size_is_the_first_passing_candidate_of_a_brute_force_search(building_file, capsys,
+                                                                      hc_min):
+    """`size --cars --loads --speeds` returns, for every rule, exactly the design a brute
+    force search of the same grid finds (the first candidate meeting the criteria in
+    the stated order, with its figures), lists given out of order. The grid is chosen
+    so that the order decides: at 25 % conventional control also passes with larger,
+    slower cars (5 x 21 persons at 1.6 m/s) and with more cars (6 x 13 at 1.6 m/s)
+    than its design (5 x 13 at 2.5 m/s)."""
+    from allocation.registry import default_rules
+    from roundtrip.inputfile import load_scenario
+    argv = ["size", str(building_file), "--cars", "1:6", "--loads", "21,13", "--speeds",
+            "2.5,1.6", "--trials", "400", "--seed", "2026", "--json"]
+    if hc_min is not None:
+        argv += ["--hc-min", str(hc_min)]
+    assert main(argv) == 0
+    d = json.loads(capsys.readouterr().out)
+    scenario = load_scenario(building_file)
+    hc = 11.0 if hc_min is None else hc_min
+    assert d["criteria"] == {"interval_max_s": 30.0, "hc_min_pct": hc}
+    rules = default_rules()
+    expected, meets = brute_force_designs(scenario, rules, range(1, 7), (13, 21), (1.6, 2.5),
+                                          30.0, hc, 400, 2026)
+    got = {x["rule"]: x for x in d["designs"]}
+    assert list(got) == rules
+    for rule in rules:
+        x = got[rule]
+        assert x["found"] == (expected[rule] is not None)
+        if x["found"]:
+            key = (x["cars"], x["rated_load_persons"], x["rated_speed_mps"])
+            assert key == expected[rule], rule
+            ok, interval, hc_pct = meets[(rule, *key)]
+            assert x["interval_s"] == interval and x["handling_capacity_pct_5min"] == hc_pct
+    if hc_min is not None:              # the order, not the grid, decides these
+        assert expected["random"] == (5, 13, 2.5)
+        assert meets[("random", 5, 21, 1.6)][0] and meets[("random", 6, 13, 1.6)][0]
+    else:
+        assert expected["fewest-stops"] == (3, 13, 2.5)     # speed is searched too
+
+
 @pytest.mark.slow
 def test_report_end_to_end_escapes_the_building_name(tmp_path, capsys):
     f = tmp_path / "mark.toml"

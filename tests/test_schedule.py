@@ -90,6 +90,13 @@ def test_schedule_is_the_reference_trip_in_time(t):
         dwell = group.stop_overhead_s + s.boarded[e] * group.transfer_in_s + (
             s.alighted[e] * group.transfer_out_s if e > 0 else 0.0)
         assert s.depart_s[e] - s.arrive_s[e] == pytest.approx(dwell, abs=tol)
+    # the route, read from the kernel's own schedule: strictly ascending to the highest
+    # stop, strictly descending after it, and back at the lobby
+    floors = list(s.stop_floors[1:-1])
+    top = floors.index(max(floors)) if floors else 0
+    assert all(a < b for a, b in zip(floors[:top], floors[1:top + 1]))
+    assert all(a > b for a, b in zip(floors[top:], floors[top + 1:]))
+    assert s.stop_floors[0] == s.stop_floors[-1] == 0
     for i, (orig, dest) in enumerate(pairs):
         if s.board_stop[i] >= 0:
             assert s.stop_floors[s.board_stop[i]] == orig
@@ -103,3 +110,24 @@ def test_schedule_is_the_reference_trip_in_time(t):
 def test_schedule_refuses_an_impossible_passenger():
     with pytest.raises(ValueError, match="two different floors"):
         schedule_of([(0, 4)], HAND_BUILDING, HAND_GROUP)
+
+
+@pytest.mark.parametrize("floors", [17, 32, 48, 63])
+def test_every_floor_is_reached_where_it_is(floors):
+    """Fixed cases on 17, 32, 48 and 63 floors (unequal rises): a trip to floor f alone
+    stops at f and nowhere else, and takes exactly the two ideal flights (kinematics)
+    plus two stops and one passenger's transfers; the same from floor f down; and a trip
+    to every floor stops at each once, in order."""
+    rises = tuple(3.4 + 0.35 * (f % 5) + (1.5 if f % 11 == 0 else 0.0) for f in range(1, floors + 1))
+    b = Building(f"tall-{floors}", rises, (1.0,) * floors, 6.0)
+    g = replace(HAND_GROUP, rated_load_persons=floors, rated_speed_mps=4.0)
+    levels = b.levels_m
+    for f in range(1, floors + 1):
+        run = flight_time_s(levels[f], g.rated_speed_mps, g.acceleration_mps2, g.jerk_mps3)
+        expected = 2 * run + 2 * g.stop_overhead_s + g.transfer_in_s + g.transfer_out_s
+        for trip in ([(0, f)], [(f, 0)]):
+            s = schedule_of(trip, b, g)
+            assert s.stop_floors == (0, f, 0), (trip, s.stop_floors)
+            assert s.round_trip_time_s == pytest.approx(expected, rel=1e-12)
+    s = schedule_of([(0, f) for f in range(floors, 0, -1)], b, g)
+    assert s.stop_floors == (0, *range(1, floors + 1), 0)

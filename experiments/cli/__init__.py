@@ -4,21 +4,38 @@ Each command lives in its own module (``experiments/cli/<command>.py``),
 imported only when that command runs, so that `liftsort calc` never loads
 numba, pandas or seaborn. The commands call the orchestration of
 :mod:`experiments` (which never imports this package) and print what it
-returns. Errors in input files or options print one paragraph and exit with
-status 2, without a traceback.
+returns.
+
+Every run ends in one of three ways (the guard in :func:`main`):
+
+* exit status 0 with a result;
+* exit status 2 with one paragraph naming what is wrong: an input file or an
+  option (the key or option, its value, what is allowed), or the environment
+  (an output folder that cannot be written, too little memory);
+* exit status 130 with one line after Ctrl-C.
+
+Anything else is a bug: one short message asks for a report (status 1); the
+traceback is shown only with ``--debug``. Output sets are written whole or not
+at all (:func:`experiments.outputs.output_set`).
 """
 from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
+import traceback
 
 from roundtrip import __version__
-from roundtrip.inputfile import InputError, load_scenario
+from roundtrip.inputfile import InputError, load_scenario, printable
 
-from .options import ci_type, number, passengers_type, seed_type, trials_type, whole
+from .caches import choose_cache_folders
+from .options import (cars_open_type, ci_type, hc_type, interval_type, max_trials_type,
+                      passengers_type, seed_type, threads_type, trials_type)
 
 EXIT_BAD_INPUT = 2
+EXIT_BUG = 1
+EXIT_INTERRUPTED = 130
 
 
 def _rules_help(names: str | None) -> str:
@@ -49,12 +66,13 @@ def _add_run_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--ci-target", metavar="PCT", type=ci_type, default=0.5,
                    help="stop when the 95 %% half-width of the round-trip time is at most "
                         "PCT %% of its mean (default 0.5)")
-    p.add_argument("--max-trials", metavar="N", type=trials_type, default=2_000_000,
-                   help="trial cap of the adaptive run (default 2,000,000)")
+    p.add_argument("--max-trials", metavar="N", type=max_trials_type, default=2_000_000,
+                   help="trial cap of the adaptive run (default 2,000,000; never more than the "
+                        "memory limit allows: 8 million car trips kept per run)")
     p.add_argument("--seed", metavar="S", type=seed_type, default=2026,
                    help="seed of the random stream; the same seed gives the same numbers "
                         "(default 2026)")
-    p.add_argument("--threads", metavar="T", type=whole(1, "T must be a whole number of threads >= 1"),
+    p.add_argument("--threads", metavar="T", type=threads_type,
                    help="compute threads (default: all cores); results do not depend on it")
 
 
@@ -85,7 +103,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     calc.add_argument("--poisson", action="store_true",
                       help="use the Poisson-passenger forms of S and H")
     _add_json(calc)
-    calc.set_defaults(handler="experiments.cli.calc")
+    calc.set_defaults(handler="experiments.cli.calc", compiled=False)
 
     sim = sub.add_parser(
         "simulate", help="Monte Carlo round trips of one car, with 95 %% confidence intervals",
@@ -108,7 +126,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "`random` (conventional control) with paired 95 %% intervals.")
     _add_file(cmp_)
     cmp_.add_argument("--rules", metavar="LIST", help=rules_help)
-    cmp_.add_argument("--cars-open", metavar="K", type=whole(1, "K must be a whole number of cars >= 1"),
+    cmp_.add_argument("--cars-open", metavar="K", type=cars_open_type,
                       help="cars open to allocation at once, 1 ... cars (default: all cars)")
     cmp_.add_argument("--passengers", metavar="P", type=passengers_type,
                       help="mean passengers per car per round [persons] (default: the demand's "
@@ -151,9 +169,9 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "handling capacity >= the file's demand (or 12 %%), common office practice "
                     "(CIBSE Guide D).")
     _add_file(sz)
-    sz.add_argument("--interval-max", metavar="S", type=number(0.0, True, "S must be > 0 [s]"),
+    sz.add_argument("--interval-max", metavar="S", type=interval_type,
                     help="largest acceptable interval at design load [s] (default 30)")
-    sz.add_argument("--hc-min", metavar="PCT", type=number(0.0, True, "PCT must be > 0 [%%]"),
+    sz.add_argument("--hc-min", metavar="PCT", type=hc_type,
                     help="least 5-minute handling capacity [%% of population] (default: the "
                          "file's demand, else 12)")
     sz.add_argument("--cars", metavar="A:B", default="1:10",
@@ -190,23 +208,79 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     demo.add_argument("--seed", metavar="S", type=seed_type, default=2026,
                       help="seed of the random stream (default 2026)")
     demo.set_defaults(handler="experiments.cli.demo", file=None)
+    for command in sub.choices.values():
+        _add_debug(command)
+    _add_debug(parser)
     return parser
 
 
+def _add_debug(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                   help="on an unexpected error, show the traceback (for a bug report)")
+
+
+def _say(command: str, text: str) -> None:
+    name = f"liftsort {command}" if command else "liftsort"
+    print(f"{name}: {text}", file=sys.stderr)
+
+
 def main(argv: list[str] | None = None) -> int:
+    """Run one command; returns the exit status (0, 2, 130; 1 for a bug)."""
     argv = sys.argv[1:] if argv is None else list(argv)
-    names = None
-    if "-h" in argv or "--help" in argv:        # only help pays for the registry's import
-        from allocation.registry import default_rules
-        names = ",".join(default_rules())
-    parser = build_parser(names)
-    args = parser.parse_args(argv)
+    debug = "--debug" in argv
+    command = ""
+    caches = None
     try:
+        names = None
+        if "-h" in argv or "--help" in argv:    # only help pays for the registry's import
+            caches = choose_cache_folders()
+            from allocation.registry import default_rules
+            names = ",".join(default_rules())
+        parser = build_parser(names)
+        args = parser.parse_args(argv)
+        command = args.command
+        if caches is None and getattr(args, "compiled", True):
+            caches = choose_cache_folders()
+            if caches.note:
+                print(caches.note, file=sys.stderr)
         scenario = load_scenario(args.file) if args.file is not None else None
         module = importlib.import_module(args.handler)
         return module.run(args, scenario)
     except InputError as exc:
-        print(f"liftsort {args.command}: error: {exc}", file=sys.stderr)
+        _say(command, f"error: {exc}")
         return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        _say(command, "interrupted; nothing was written (an output folder keeps its previous "
+                      "set).")
+        return EXIT_INTERRUPTED
     except BrokenPipeError:
+        _quiet_stdout()
         return 0
+    except MemoryError:
+        _say(command, "error: not enough memory for this run; give fewer --trials, a larger "
+                      "--ci-target or a smaller building, or free some memory.")
+        return EXIT_BAD_INPUT
+    except OSError as exc:
+        where = f"{printable(exc.filename)}: " if getattr(exc, "filename", None) else ""
+        _say(command, f"error: {where}{printable(exc.strerror or exc)}.")
+        return EXIT_BAD_INPUT
+    except Exception as exc:                      # a bug: say so briefly, ask for a report
+        if debug:
+            traceback.print_exc()
+        hint = "" if debug else " (run it again with --debug to see the traceback)"
+        _say(command, f"internal error: {type(exc).__name__}: {printable(exc)}. This is a bug "
+                      f"in liftsort; please report it with the input file and the command "
+                      f"line{hint}.")
+        return EXIT_BUG
+    finally:
+        if caches is not None:
+            caches.remove()
+
+
+def _quiet_stdout() -> None:
+    """After a closed pipe, send what is left of stdout nowhere (no second error at exit)."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError, AttributeError):
+        pass

@@ -3,17 +3,31 @@ from __future__ import annotations
 
 from roundtrip.building import Scenario
 
-from experiments.outputs import output_dir
+from experiments.outputs import output_set
 from experiments.wording import CAUTION
 
+from .options import check_trials
 from .tables import dumps
 
 
+def published(result: dict, outs) -> dict:
+    """The job's result with its file paths where the finished set lives."""
+    return {**result, "report": str(outs.final_path(result["report"])),
+            "csv": str(outs.final_path(result["csv"])),
+            "figures": [str(outs.final_path(p)) for p in result["figures"]]}
+
+
 def run(args, scenario: Scenario) -> int:
+    from allocation.registry import default_rules
     from experiments.report_job import run_job
-    out = output_dir(args.out)
-    result = run_job(scenario, args.file, out, seed=args.seed, ci_target_pct=args.ci_target,
-                     trials=args.trials, quiet=args.quiet or args.json, threads=args.threads)
+    g = scenario.group
+    check_trials(args.trials, cars=g.cars + 3, rules=len(default_rules()),
+                 passengers_per_car=g.design_load_persons)
+    with output_set(args.out, command="report") as outs:
+        result = published(run_job(scenario, args.file, outs.folder, seed=args.seed,
+                                   ci_target_pct=args.ci_target, trials=args.trials,
+                                   max_trials=args.max_trials, quiet=args.quiet or args.json,
+                                   threads=args.threads), outs)
     if args.json:
         print(dumps(result))
         return 0

@@ -25,6 +25,7 @@ import importlib
 import os
 import sys
 import traceback
+import warnings
 
 from roundtrip import __version__
 from roundtrip.inputfile import InputError, load_scenario, printable
@@ -205,12 +206,13 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "(Larkspur Exchange) and print the results.")
     demo.add_argument("--out", metavar="DIR", default="liftsort-demo",
                       help="where the report and charts go (default: liftsort-demo)")
-    demo.add_argument("--seed", metavar="S", type=seed_type, default=2026,
-                      help="seed of the random stream (default 2026)")
+    demo.add_argument("--quiet", action="store_true", help="no progress bar")
+    _add_run_options(demo)
     demo.set_defaults(handler="experiments.cli.demo", file=None)
     for command in sub.choices.values():
         _add_debug(command)
     _add_debug(parser)
+    parser.commands = dict(sub.choices)          # name -> parser, for help and the tests
     return parser
 
 
@@ -225,8 +227,19 @@ def _say(command: str, text: str) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Run one command; returns the exit status (0, 2, 130; 1 for a bug)."""
+    """Run one command; returns the exit status (0, 2, 130; 1 for a bug).
+
+    Library warnings (numpy's on a figure that cannot be estimated from too few trials,
+    which shows as "-" or null) are not shown, except with ``--debug``.
+    """
     argv = sys.argv[1:] if argv is None else list(argv)
+    with warnings.catch_warnings():
+        if "--debug" not in argv:
+            warnings.simplefilter("ignore")
+        return _main(argv)
+
+
+def _main(argv: list[str]) -> int:
     debug = "--debug" in argv
     command = ""
     caches = None

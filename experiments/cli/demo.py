@@ -21,8 +21,10 @@ def run(args, scenario=None) -> int:
         print_classical(classical_result(scenario, None, False),
                         f"{scenario.building.name} (invented demo building): classical "
                         f"up-peak calculation (demand mode)")
-        result = published(run_job(scenario, path, outs.folder, seed=args.seed, quiet=False),
-                           outs)
+        result = published(run_job(scenario, path, outs.folder, seed=args.seed,
+                                   ci_target_pct=args.ci_target, trials=args.trials,
+                                   max_trials=args.max_trials, quiet=args.quiet,
+                                   threads=args.threads), outs)
     m = result["monte_carlo"]
     print(f"\nMonte Carlo, conventional control at the demand: round-trip time "
           f"{m['round_trip_time_s']:.1f} s ± {m['ci95_s']:.1f} s, interval {m['interval_s']:.1f} s"

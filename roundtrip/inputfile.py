@@ -48,9 +48,9 @@ key                    accepted            basis
 floor rise             2 to 50 m           storeys run 2.5 m (housing) to 6 m (lobbies,
                                            plant); up to 50 m lets a rise span unserved
                                            storeys (common practice)
-express_m              0 to 1000 m         the longest passenger-lift travel is about
+express_m              0 to 800 m          the longest passenger-lift travel is about
                                            600 m (common practice); the whole rise,
-                                           express zone included, is held to 1000 m too
+                                           express zone included, is held to 1000 m
 population             0 to 10 000 per     an office floor holds one person per 8 to
                        floor               14 m^2 of net area (CIBSE Guide D, from memory)
 cars                   1 to 16             a group rarely has more than 8 cars (common
@@ -197,7 +197,7 @@ _BUILDING = {
                             _positive, required=False, plausible=_RISE, item="a rise > 0 [m]"),
     "express_m": _Key("number", "an unserved rise >= 0 [m]", _non_negative,
                       required=False, default=0.0,
-                      plausible=Plausible(0.0, MAX_TOTAL_RISE_M, "m",
+                      plausible=Plausible(0.0, 800.0, "m",
                                           "the longest passenger-lift travel is about 600 m; "
                                           "common practice")),
     "population": _Key("number-or-list",
@@ -532,10 +532,10 @@ def load_scenario(path: str | Path) -> Scenario:
         When the file is missing, unreadable, not a regular file or too large, is
         not valid TOML (the message gives the line), or fails validation.
     """
+    if os.fspath(path) == "":
+        raise InputError(["no input file given (the name is empty)."])
     path = Path(path)
     source = printable(path)
-    if str(path) == "":
-        raise InputError(["no input file given (the name is empty)."])
     try:
         info = path.stat()
     except FileNotFoundError:

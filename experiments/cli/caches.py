@@ -56,25 +56,30 @@ def _package_folders(names=COMPILED_PACKAGES) -> list[Path]:
     return folders
 
 
-def _user_cache_home() -> Path | None:
-    base = os.environ.get("XDG_CACHE_HOME")
-    if base:
-        return Path(base)
+def _home(env) -> Path | None:
+    if env.get("HOME"):
+        return Path(env["HOME"])
     try:
-        return Path.home() / ".cache"
+        return Path.home()
     except (RuntimeError, KeyError):
         return None
 
 
-def _matplotlib_folders() -> list[Path]:
+def _user_cache_home(env) -> Path | None:
+    if env.get("XDG_CACHE_HOME"):
+        return Path(env["XDG_CACHE_HOME"])
+    home = _home(env)
+    return home / ".cache" if home is not None else None
+
+
+def _matplotlib_folders(env) -> list[Path]:
     """The folders matplotlib writes to when MPLCONFIGDIR is not set."""
-    try:
-        home = Path.home()
-    except (RuntimeError, KeyError):
+    home = _home(env)
+    if home is None:
         return [Path("/nonexistent")]
     if sys.platform.startswith("linux"):
-        config = Path(os.environ.get("XDG_CONFIG_HOME") or home / ".config")
-        cache = Path(os.environ.get("XDG_CACHE_HOME") or home / ".cache")
+        config = Path(env.get("XDG_CONFIG_HOME") or home / ".config")
+        cache = Path(env.get("XDG_CACHE_HOME") or home / ".cache")
         return [config / "matplotlib", cache / "matplotlib"]
     return [home / ".matplotlib"]
 
@@ -128,7 +133,7 @@ def choose_cache_folders(environ=None, package_folders=None) -> CacheFolders:
     numba_ok = (given and writable_folder(Path(given))) or all(
         writable_folder(f / "__pycache__") for f in folders)
     if not numba_ok:
-        user = _user_cache_home()
+        user = _user_cache_home(env)
         persistent = user / "liftsort" / "numba" if user is not None else None
         if persistent is not None and writable_folder(persistent):
             env["NUMBA_CACHE_DIR"] = str(persistent)
@@ -142,8 +147,8 @@ def choose_cache_folders(environ=None, package_folders=None) -> CacheFolders:
                               f"writable folder")
             env["NUMBA_CACHE_DIR"] = str(where / "numba")
             chosen.note = SLOWER_NOTE.format(reason=reason)
-    if not env.get("MPLCONFIGDIR") and not all(writable_folder(f) for f in _matplotlib_folders()):
-        user = _user_cache_home()
+    if not env.get("MPLCONFIGDIR") and not all(writable_folder(f) for f in _matplotlib_folders(env)):
+        user = _user_cache_home(env)
         persistent = user / "liftsort" / "matplotlib" if user is not None else None
         if persistent is not None and writable_folder(persistent):
             env["MPLCONFIGDIR"] = str(persistent)

@@ -263,8 +263,7 @@ def _main(argv: list[str]) -> int:
         _say(command, f"error: {exc}")
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
-        _say(command, "interrupted; nothing was written (an output folder keeps its previous "
-                      "set).")
+        _say(command, "interrupted; no partial output is left.")
         return EXIT_INTERRUPTED
     except BrokenPipeError:
         _quiet_stdout()

@@ -129,9 +129,11 @@ def check_output_folder(path, option: str = "--out") -> Path:
     if text == "":
         raise InputError([f"{option} '': give the name of a folder."])
     final = Path(os.path.abspath(text))
-    if final.is_symlink() and final.resolve().is_dir():
-        final = final.resolve()
     shown = _q(text)
+    if final.is_symlink():
+        if not final.resolve().is_dir():
+            raise InputError([f"{option} {shown}: is a link to no folder."])
+        final = final.resolve()
     if final.exists() and not final.is_dir():
         raise InputError([f"{option} {shown}: exists and is not a folder."])
     if final.parent == final:

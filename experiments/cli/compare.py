@@ -7,7 +7,8 @@ from roundtrip.inputfile import InputError
 from experiments.estimates import comparison_run
 from experiments.wording import CAUTION, count_of
 
-from .options import check_cars_open, check_rules_fit, check_trials, parse_rules
+from .options import (check_cars_open, check_rules_fit, check_trials, parse_rules,
+                      target_note)
 from .tables import dumps, grid_table
 
 
@@ -43,6 +44,11 @@ def run(args, scenario: Scenario) -> int:
                       "load [%]", "RTT gain [%]", "+/-", "HC gain [%]", "+/-"], rows))
     print("\nGains are against `random` (conventional control) on the same batches; "
           "+/- are paired 95 % intervals.")
+    note = target_note(args, max(100 * r["ci95_s"] / r["round_trip_time_s"] for r in d["rules"]
+                                 if r["round_trip_time_s"] > 0) if d["rules"] else 0.0,
+                       d["trials"])
+    if note:
+        print("\n" + note)
     if d["saturated_under_random"]:
         print("Demand mode: conventional control is saturated at this demand, so the rules are "
               "compared at the design load.")

@@ -9,7 +9,7 @@ from experiments.outputs import output_set
 from experiments.wording import CAUTION
 
 from .calc import print_classical
-from .report import published
+from .report import check_job_trials, published
 from .tables import grid_table
 
 
@@ -17,6 +17,7 @@ def run(args, scenario=None) -> int:
     from experiments.report_job import run_job
     path = demo_building_path()
     scenario = load_scenario(path)
+    check_job_trials(args.trials, scenario)
     with output_set(args.out, command="demo") as outs:
         print_classical(classical_result(scenario, None, False),
                         f"{scenario.building.name} (invented demo building): classical "

@@ -209,3 +209,13 @@ def parse_range(text: str, option: str, *, whole: bool, low: float,
     if bad:
         raise InputError([f"{option} {shown}: {allowed()} (got {bad[0]:g})."])
     return list(dict.fromkeys(values))
+
+
+def target_note(args, widest_pct: float, trials: int) -> str | None:
+    """A line for an adaptive run that stopped at its trial cap (``--max-trials`` or the
+    run limits) before the interval met ``--ci-target``; None otherwise."""
+    if args.trials is not None or not widest_pct > args.ci_target:
+        return None
+    return (f"The run stopped at {trials:,} trials (--max-trials or the memory limit) with a "
+            f"95 % half-width of up to {widest_pct:.2g} % of the round-trip time, short of "
+            f"--ci-target {args.ci_target:g}.")

@@ -17,12 +17,18 @@ def published(result: dict, outs) -> dict:
             "figures": [str(outs.final_path(p)) for p in result["figures"]]}
 
 
-def run(args, scenario: Scenario) -> int:
+def check_job_trials(trials, scenario: Scenario) -> None:
+    """An exact --trials N of the whole job must fit the run limits (its sizing search
+    tries up to three cars more than the group has)."""
     from allocation.registry import default_rules
-    from experiments.report_job import run_job
     g = scenario.group
-    check_trials(args.trials, cars=g.cars + 3, rules=len(default_rules()),
+    check_trials(trials, cars=g.cars + 3, rules=len(default_rules()),
                  passengers_per_car=g.design_load_persons)
+
+
+def run(args, scenario: Scenario) -> int:
+    from experiments.report_job import run_job
+    check_job_trials(args.trials, scenario)
     with output_set(args.out, command="report") as outs:
         result = published(run_job(scenario, args.file, outs.folder, seed=args.seed,
                                    ci_target_pct=args.ci_target, trials=args.trials,

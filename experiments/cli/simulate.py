@@ -6,7 +6,7 @@ from roundtrip.building import Scenario
 from experiments.estimates import classical_result, monte_carlo_result
 from experiments.wording import CAUTION
 
-from .options import check_trials
+from .options import check_trials, target_note
 from .tables import dumps, grid_table
 
 
@@ -55,5 +55,9 @@ def run(args, scenario: Scenario) -> int:
         elif not r.converged:
             print("\nThe fixed point did not settle within the iteration limit; "
                   "the last iterate is shown.")
+    rtt = d["round_trip_time_s"]
+    note = target_note(args, 100 * d["ci95_s"] / rtt if rtt > 0 else 0.0, r.trials)
+    if note:
+        print("\n" + note)
     print("\n" + CAUTION)
     return 0

@@ -31,6 +31,10 @@ from roundtrip.inputfile import InputError, printable
 #: The manifest of an output set, written last into the finished set.
 MANIFEST = "liftsort-set.json"
 
+#: The private folders of the sets being written in this process (see
+#: :func:`remove_unfinished_sets`).
+_UNFINISHED: set[Path] = set()
+
 #: What a set written before manifests existed may hold (besides its own charts).
 _OLD_SET_FILES = {"sweep.csv", "report.html"}
 _OLD_SET_SUFFIXES = {".png", ".svg", ".csv", ".html"}
@@ -188,15 +192,26 @@ def output_set(path, *, option: str = "--out", command: str = ""):
     except OSError as exc:
         raise InputError([f"{option} {_q(path)}: cannot write into {_q(anchor)} "
                           f"({exc.strerror})."]) from None
+    _UNFINISHED.add(folder)
     try:
         yield OutputSet(final, folder, option)
         _write_manifest(folder, command)
         os.chmod(folder, 0o777 & ~_umask())        # an ordinary folder, not mkdtemp's 0700
         with _interrupts_held():
+            _UNFINISHED.discard(folder)
             _put_in_place(folder, final)
     except BaseException:
+        _UNFINISHED.discard(folder)
         shutil.rmtree(folder, ignore_errors=True)
         raise
+
+
+def remove_unfinished_sets() -> None:
+    """Remove the private folders of the sets still being written (for a program that must
+    stop at once: Ctrl-C in ``liftsort``); ``--out`` folders are never touched."""
+    for folder in list(_UNFINISHED):
+        shutil.rmtree(folder, ignore_errors=True)
+        _UNFINISHED.discard(folder)
 
 
 def _write_manifest(folder: Path, command: str) -> None:

@@ -230,11 +230,22 @@ def _chart_worker():
     "spawn" (a clean interpreter: no threads inherited from the kernels).
     """
     import multiprocessing
+    import signal
     from concurrent.futures import ProcessPoolExecutor
+    # The helper starts with Ctrl-C blocked (the signal mask is inherited), so that it never
+    # reports one of its own while it starts; here a Ctrl-C meanwhile waits, then ends the
+    # job (and the helper with it). The pool is made first: making it starts
+    # multiprocessing's resource tracker, which unblocks Ctrl-C when it has started.
     pool = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("spawn"),
                                initializer=_ignore_interrupts)
+    block = hasattr(signal, "pthread_sigmask")
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT}) if block else None
     try:
-        pool.submit(_warm_up)
+        pool.submit(_warm_up)                     # starts the helper process now
+    finally:
+        if block:
+            signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+    try:
         yield pool
     except BaseException:
         pool.shutdown(wait=True, cancel_futures=True)   # Ctrl-C or an error: drop queued charts
@@ -244,9 +255,21 @@ def _chart_worker():
 
 def _ignore_interrupts() -> None:
     """The chart process leaves Ctrl-C to the main process, which ends the job (and this
-    process with it) cleanly."""
+    process with it), and ends itself should the main process end without it (a process
+    pool's helper would otherwise wait for work for ever)."""
+    import os
     import signal
+    import threading
+    import time
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    parent = os.getppid()
+
+    def watch():
+        while os.getppid() == parent:
+            time.sleep(0.5)
+        os._exit(0)
+
+    threading.Thread(target=watch, daemon=True, name="liftsort-parent-watch").start()
 
 
 def _warm_up() -> None:

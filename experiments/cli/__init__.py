@@ -28,11 +28,11 @@ import traceback
 import warnings
 
 from roundtrip import __version__
-from roundtrip.inputfile import InputError, load_scenario, printable
 
 from .caches import choose_cache_folders
-from .options import (cars_open_type, ci_type, hc_type, interval_type, max_trials_type,
-                      passengers_type, seed_type, threads_type, trials_type)
+
+# Only the standard library is imported above: the rest (numpy with it) loads inside
+# main's guard, so that Ctrl-C at any moment after start-up ends in the one line.
 
 EXIT_BAD_INPUT = 2
 EXIT_BUG = 1
@@ -62,6 +62,7 @@ def _add_counts(p: argparse.ArgumentParser) -> None:
 
 
 def _add_run_options(p: argparse.ArgumentParser) -> None:
+    from .options import ci_type, max_trials_type, seed_type, threads_type, trials_type
     p.add_argument("--trials", metavar="N", type=trials_type,
                    help="run exactly N trials instead of stopping on --ci-target")
     p.add_argument("--ci-target", metavar="PCT", type=ci_type, default=0.5,
@@ -79,6 +80,7 @@ def _add_run_options(p: argparse.ArgumentParser) -> None:
 
 def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentParser:
     """The parser; ``default_rule_names`` (from the registry) only for the help text."""
+    from .options import cars_open_type, hc_type, interval_type, passengers_type
     rules_help = _rules_help(default_rule_names)
     parser = argparse.ArgumentParser(
         prog="liftsort",
@@ -239,14 +241,27 @@ def main(argv: list[str] | None = None) -> int:
         return _main(argv)
 
 
+class _NotLoaded(Exception):
+    """Stands for InputError until its module is loaded."""
+
+
+def _shown(value) -> str:
+    """Text for a message, control characters escaped (standard library only)."""
+    return "".join(c if c.isprintable() or c == " " else repr(c)[1:-1] for c in str(value))
+
+
 def _main(argv: list[str]) -> int:
     debug = "--debug" in argv
     command = ""
     caches = None
+    bad_input = _NotLoaded
     try:
+        from roundtrip.inputfile import InputError as bad_input
+        from roundtrip.inputfile import load_scenario
         names = None
         if "-h" in argv or "--help" in argv:    # only help pays for the registry's import
             caches = choose_cache_folders()
+            _ON_EXIT.append(caches.remove)
             from allocation.registry import default_rules
             names = ",".join(default_rules())
         parser = build_parser(names)
@@ -254,12 +269,13 @@ def _main(argv: list[str]) -> int:
         command = args.command
         if caches is None and getattr(args, "compiled", True):
             caches = choose_cache_folders()
+            _ON_EXIT.append(caches.remove)
             if caches.note:
                 print(caches.note, file=sys.stderr)
         scenario = load_scenario(args.file) if args.file is not None else None
         module = importlib.import_module(args.handler)
         return module.run(args, scenario)
-    except InputError as exc:
+    except bad_input as exc:
         _say(command, f"error: {exc}")
         return EXIT_BAD_INPUT
     except KeyboardInterrupt:
@@ -273,20 +289,71 @@ def _main(argv: list[str]) -> int:
                       "--ci-target or a smaller building, or free some memory.")
         return EXIT_BAD_INPUT
     except OSError as exc:
-        where = f"{printable(exc.filename)}: " if getattr(exc, "filename", None) else ""
-        _say(command, f"error: {where}{printable(exc.strerror or exc)}.")
+        where = f"{_shown(exc.filename)}: " if getattr(exc, "filename", None) else ""
+        _say(command, f"error: {where}{_shown(exc.strerror or exc)}.")
         return EXIT_BAD_INPUT
     except Exception as exc:                      # a bug: say so briefly, ask for a report
         if debug:
             traceback.print_exc()
         hint = "" if debug else " (run it again with --debug to see the traceback)"
-        _say(command, f"internal error: {type(exc).__name__}: {printable(exc)}. This is a bug "
+        _say(command, f"internal error: {type(exc).__name__}: {_shown(exc)}. This is a bug "
                       f"in liftsort; please report it with the input file and the command "
                       f"line{hint}.")
         return EXIT_BUG
     finally:
         if caches is not None:
             caches.remove()
+            if caches.remove in _ON_EXIT:
+                _ON_EXIT.remove(caches.remove)
+
+
+def entry() -> None:
+    """The `liftsort` program: :func:`main`, then exit with its status.
+
+    As a program (not when :func:`main` is called from Python), Ctrl-C is answered at
+    once by :func:`_interrupted`: one line, the unfinished output set and the temporary
+    cache removed, exit status 130. Python would otherwise turn it into an exception
+    wherever the program happens to be, and where it cannot be raised (a callback of
+    numba's compiler, a finaliser) it prints a stray "Exception ignored" report instead.
+    """
+    import signal
+    signal.signal(signal.SIGINT, _interrupted)
+    if "--debug" not in sys.argv:
+        # helper processes (multiprocessing's resource tracker among them) inherit it
+        os.environ.setdefault("PYTHONWARNINGS", "ignore")
+    status = main()
+    try:
+        sys.stdout.flush()
+    except (BrokenPipeError, ValueError, OSError):
+        _quiet_stdout()
+    signal.signal(signal.SIGINT, signal.SIG_IGN)     # the command has ended
+    sys.exit(status)
+
+
+def _interrupted(signum, frame) -> None:
+    """Ctrl-C in the program: say so in one line, leave nothing unfinished, exit 130."""
+    command = next((a for a in sys.argv[1:] if not a.startswith("-")), "")
+    try:
+        sys.stdout.flush()
+    except (OSError, ValueError):
+        pass
+    _say(command if command.isidentifier() else "", "interrupted; no partial output is left.")
+    for remove in list(_ON_EXIT):
+        try:
+            remove()
+        except Exception:                             # nothing more can be done here
+            pass
+    if "experiments.outputs" in sys.modules:
+        sys.modules["experiments.outputs"].remove_unfinished_sets()
+    if "multiprocessing" in sys.modules:                # the chart process of a report
+        for child in sys.modules["multiprocessing"].active_children():
+            child.terminate()
+            child.join(2)
+    os._exit(EXIT_INTERRUPTED)
+
+
+#: What the program removes when interrupted (the temporary cache folder).
+_ON_EXIT: list = []
 
 
 def _quiet_stdout() -> None:

@@ -507,3 +507,14 @@ def _as_service_account(tmp_path: Path, nobody) -> None:
     refused_run = as_nobody("sweep", path, "--arrival", "12", "--out", read_only / "set")
     assert refused_run.returncode == 2 and "cannot write into" in refused_run.stderr
     assert not [p for p in Path("/tmp").glob("liftsort-cache-*") if p.owner() == "nobody"]
+
+
+def test_the_command_line_module_loads_only_the_standard_library():
+    # So that Ctrl-C right after start-up is answered by the guard in one line too: numpy
+    # and the rest load inside main.
+    code = ("import sys; import experiments.cli; "
+            "print(sorted(m for m in ('numpy', 'numba', 'pandas', 'matplotlib') "
+            "if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=REPO)
+    assert out.stdout.strip() == "[]"

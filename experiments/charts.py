@@ -29,6 +29,7 @@ from pathlib import Path
 import numpy as np
 
 from .outputs import output_dir, write_atomic
+from .wording import count_of
 
 DPI = 150
 
@@ -171,11 +172,11 @@ def _groups(table) -> list[tuple[str, object]]:
     for cars, rows in table.groupby("cars", sort=True):
         full = rows[rows["cars_open"] == cars]
         if len(full):
-            label = f"{cars} cars" if several else ""
+            label = count_of(int(cars), "car") if several else ""
         else:
             k = rows["cars_open"].max()
             full = rows[rows["cars_open"] == k]
-            label = f"{cars} cars, {k} open to allocation"
+            label = f"{count_of(int(cars), 'car')}, {k} open to allocation"
         out.append((label, full.sort_values("arrival_rate_pct_5min")))
     return out
 
@@ -399,7 +400,7 @@ def cars_open_chart(table, out_dir, building_name: str) -> list[Path]:
             ax.set_xlabel("cars open to allocation [cars]")
             ax.set_ylabel("handling-capacity gain vs random [%]")
             if n > 1:
-                ax.set_title(f"{cars} cars", loc="left")
+                ax.set_title(count_of(int(cars), "car"), loc="left")
         for j in range(n, rows_n * cols):
             axes[j // cols][j % cols].set_visible(False)
         _suptitle(fig, f"{building_name}: handling-capacity gain against cars open to "
@@ -439,7 +440,8 @@ def distribution_charts(comparison, out_dir, building_name: str) -> list[Path]:
     results = list(comparison.results)
     if not results:
         raise ValueError("comparison: has no rule results; nothing to draw")
-    sub = (f"{comparison.passengers_per_car:.1f} passengers per car, {comparison.cars} cars, "
+    sub = (f"{comparison.passengers_per_car:.1f} passengers per car, "
+           f"{count_of(comparison.cars, 'car')}, "
            f"{comparison.trials} batches")
     paths = _distribution(results, K.STOPS, "stops above the lobby per round trip [-]",
                           f"{building_name}: stops per round trip\n({sub})", out_dir,
@@ -583,7 +585,8 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
         ax0.set_yticklabels(["lobby"] + [str(f) for f in range(1, floors + 1)])
         ax0.set_ylim(-0.6, floors + 0.6)
         ax0.set_ylabel("destination floor [floor]")
-        _suptitle(fig, f"{name}: one up-peak batch of {n} passengers for {cars} cars, "
+        _suptitle(fig, f"{name}: one up-peak batch of {count_of(n, 'passenger')} for "
+                     f"{count_of(cars, 'car')}, "
                      f"allocated by {' and by '.join(repr(r) for r, _, _ in drawn)} "
                      f"(seed {seed})")
         from matplotlib.lines import Line2D

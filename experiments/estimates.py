@@ -12,6 +12,8 @@ from roundtrip.building import Scenario
 from roundtrip.classical import UppeakResult, demand_calculation, uppeak_calculation
 from roundtrip.inputfile import InputError
 
+from .limits import trial_cap
+
 
 def require_traffic(scenario: Scenario) -> None:
     """Demand mode needs the [traffic] section: a clear input error when it is absent."""
@@ -35,8 +37,10 @@ def monte_carlo_result(scenario: Scenario, passengers: float | None, *, poisson:
                        seed: int = 0, threads=None):
     """One car's Monte Carlo round trips: at ``passengers``, or at the demand's fixed point."""
     from roundtrip.montecarlo import simulate_demand, simulate_trips
+    most = scenario.group.design_load_persons if passengers is None else passengers
     run = dict(poisson=poisson, trials=trials, ci_target_pct=ci_target_pct,
-               max_trials=max_trials, seed=seed, threads=threads)
+               max_trials=trial_cap(max_trials, passengers_per_car=most), seed=seed,
+               threads=threads)
     try:
         if passengers is not None:
             return simulate_trips(scenario.building, scenario.group, passengers,
@@ -62,11 +66,16 @@ class ComparisonRun:
                 "saturated_under_random": self.saturated_under_random}
 
 
-def demand_passengers_per_car(scenario: Scenario, poisson: bool, seed: int, threads=None):
-    """P for demand mode: the Monte Carlo fixed point under conventional control."""
+def demand_passengers_per_car(scenario: Scenario, poisson: bool, seed: int, threads=None, *,
+                              trials=None, ci_target_pct: float = 0.5,
+                              max_trials: int = 2_000_000):
+    """P for demand mode: the Monte Carlo fixed point under conventional control (with the
+    same trial options as the comparison that follows)."""
     from roundtrip.montecarlo import simulate_demand
     require_traffic(scenario)
+    cap = trial_cap(max_trials, passengers_per_car=scenario.group.design_load_persons)
     r = simulate_demand(scenario.building, scenario.group, scenario.traffic, poisson=poisson,
+                        trials=trials, ci_target_pct=ci_target_pct, max_trials=cap,
                         seed=seed, threads=threads)
     return r.passengers_per_trip, r.saturated
 
@@ -79,10 +88,14 @@ def comparison_run(scenario: Scenario, rules, passengers: float | None, *, cars_
     saturated = None
     try:
         if passengers is None:
-            passengers, saturated = demand_passengers_per_car(scenario, poisson, seed, threads)
+            passengers, saturated = demand_passengers_per_car(
+                scenario, poisson, seed, threads, trials=trials, ci_target_pct=ci_target_pct,
+                max_trials=max_trials)
+        cap = trial_cap(max_trials, cars=scenario.group.cars, rules=len(rules) + 1,
+                        passengers_per_car=passengers)
         c = compare_rules(scenario.building, scenario.group, rules, passengers,
                           cars_open=cars_open, traffic=scenario.traffic, poisson=poisson,
-                          trials=trials, ci_target_pct=ci_target_pct, max_trials=max_trials,
+                          trials=trials, ci_target_pct=ci_target_pct, max_trials=cap,
                           seed=seed, threads=threads)
     except InputError:
         raise

@@ -12,6 +12,7 @@ from __future__ import annotations
 import contextlib
 import datetime as _dt
 import hashlib
+import math
 from dataclasses import replace
 from pathlib import Path
 
@@ -21,7 +22,7 @@ from roundtrip import __version__
 from roundtrip.building import Scenario, Traffic
 
 from .outputs import write_atomic
-from .wording import CAUTION
+from .wording import CAUTION, count_of
 
 SWEEP_POINTS = 15
 
@@ -50,6 +51,11 @@ def input_rows(scenario: Scenario) -> list[tuple[str, str, str]]:
     return rows
 
 
+def _p(x) -> str:
+    """A headline figure to one decimal; "n/a" when it could not be estimated."""
+    return f"{x:.1f}" if isinstance(x, (int, float)) and math.isfinite(x) else "n/a"
+
+
 def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[str, list, dict]:
     """The answer in plain words, from the figures."""
     base_name = next(iter(rule_rows))               # the baseline comes first
@@ -65,34 +71,44 @@ def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[
         saved = designs[base_name]["cars"] - designs[grouping]["cars"]
         nums["cars_saved"] = int(saved)
     where = (f"at the design load (conventional control is saturated at this demand of "
-             f"{demand:.1f} % of the population in 5 minutes)" if base["design_hc"] < demand
-             else f"at this demand ({demand:.1f} % of the population in 5 minutes)")
-    first = (f"Destination grouping (rule '{grouping}') raises handling capacity by "
-             f"{g['hc_gain_pct_vs_random']:.1f} % ± {g['hc_gain_ci95_pct']:.1f} % and shortens the "
-             f"round trip by {g['rtt_gain_pct_vs_random']:.1f} % ± {g['rtt_gain_ci95_pct']:.1f} % "
-             f"against conventional control {where}")
+             f"{_p(demand)} % of the population in 5 minutes)" if base["design_hc"] < demand
+             else f"at this demand ({_p(demand)} % of the population in 5 minutes)")
+    gains = (g["hc_gain_pct_vs_random"], g["hc_gain_ci95_pct"], g["rtt_gain_pct_vs_random"],
+             g["rtt_gain_ci95_pct"])
+    if all(math.isfinite(x) for x in gains):
+        first = (f"Destination grouping (rule '{grouping}') raises handling capacity by "
+                 f"{_p(gains[0])} % ± {_p(gains[1])} % and shortens the round trip by "
+                 f"{_p(gains[2])} % ± {_p(gains[3])} % against conventional control {where}")
+    else:
+        first = (f"The gain of destination grouping (rule '{grouping}') over conventional "
+                 f"control {where} cannot be estimated from these batches: too few of them "
+                 f"carried passengers (run with more trials, or leave --trials out)")
+    with_cars = f"with {count_of(cars, 'car')}"
     if base["design_hc"] >= demand:
         verdict = (f"; it is not needed for capacity: conventional control already carries "
-                   f"{base['design_hc']:.1f} % at design load with {cars} cars")
+                   f"{_p(base['design_hc'])} % at design load {with_cars}")
         if saved:
-            verdict += (f", though grouping would meet the criteria with {saved} car(s) fewer")
+            verdict += (f", though grouping would meet the criteria with "
+                        f"{count_of(saved, 'car')} fewer")
     elif g["design_hc"] >= demand:
         verdict = (f"; it is needed here: conventional control carries only "
-                   f"{base['design_hc']:.1f} % at design load with {cars} cars, destination "
-                   f"grouping {g['design_hc']:.1f} %")
+                   f"{_p(base['design_hc'])} % at design load {with_cars}, destination "
+                   f"grouping {_p(g['design_hc'])} %")
         if saved:
-            verdict += f", and it saves {saved} car(s) against a conventional group that meets the criteria"
+            verdict += (f", and it saves {count_of(saved, 'car')} against a conventional group "
+                        f"that meets the criteria")
     else:
-        verdict = (f"; neither carries the demand with {cars} cars (conventional "
-                   f"{base['design_hc']:.1f} %, grouping {g['design_hc']:.1f} % at design load)")
+        verdict = (f"; neither carries the demand {with_cars} (conventional "
+                   f"{_p(base['design_hc'])} %, grouping {_p(g['design_hc'])} % at design load)")
         if saved is not None:
-            verdict += (f"; meeting the criteria takes {designs['random']['cars']} cars under "
-                        f"conventional control and {designs[grouping]['cars']} with grouping")
+            verdict += (f"; meeting the criteria takes "
+                        f"{count_of(designs[base_name]['cars'], 'car')} under conventional "
+                        f"control and {designs[grouping]['cars']} with grouping")
     points = [
-        f"Conventional control: round-trip time {base['round_trip_time_s']:.1f} s, interval "
-        f"{base['interval_s']:.1f} s, {base['expected_stops']:.1f} stops per trip.",
-        f"Destination grouping ('{grouping}'): round-trip time {g['round_trip_time_s']:.1f} s, "
-        f"interval {g['interval_s']:.1f} s, {g['expected_stops']:.1f} stops per trip.",
+        f"Conventional control: round-trip time {_p(base['round_trip_time_s'])} s, interval "
+        f"{_p(base['interval_s'])} s, {_p(base['expected_stops'])} stops per trip.",
+        f"Destination grouping ('{grouping}'): round-trip time {_p(g['round_trip_time_s'])} s, "
+        f"interval {_p(g['interval_s'])} s, {_p(g['expected_stops'])} stops per trip.",
         "These gains assume every car of the group is open to allocation; the chart of gain "
         "against cars open shows how much remains when fewer are.",
     ]
@@ -100,15 +116,23 @@ def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[
 
 
 def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: int = 2026,
-            ci_target_pct: float = 0.5, trials: int | None = None, quiet: bool = True,
-            threads=None) -> dict:
-    """Run the whole job and write ``report.html`` (and the charts, sweep.csv) into out_dir."""
+            ci_target_pct: float = 0.5, trials: int | None = None,
+            max_trials: int = 1_000_000, quiet: bool = True, threads=None) -> dict:
+    """Run the whole job and write ``report.html`` (and the charts, sweep.csv) into out_dir.
+
+    ``out_dir`` should be a folder of this run alone (the command line gives the private
+    folder of :func:`experiments.outputs.output_set`): the report embeds the charts this
+    run drew there. Adaptive runs stop at ``max_trials`` (the sweeps at 400,000) or at the
+    run limits (:func:`experiments.limits.trial_cap`).
+    """
     with _chart_worker() as worker:
         return _run_job(scenario, input_path, out_dir, worker, seed=seed,
-                        ci_target_pct=ci_target_pct, trials=trials, quiet=quiet, threads=threads)
+                        ci_target_pct=ci_target_pct, trials=trials, max_trials=max_trials,
+                        quiet=quiet, threads=threads)
 
 
-def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, quiet, threads):
+def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, max_trials,
+             quiet, threads):
     from roundtrip.classical import demand_calculation
     from allocation.registry import default_rules
     from batchrounds.montecarlo import compare_rules
@@ -118,23 +142,30 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
     from .sizing import default_criteria, size_group
     from .sweep import demand_sweep
 
+    from .limits import trial_cap
+
     b, g = scenario.building, scenario.group
     rules = default_rules()
     traffic = scenario.traffic or Traffic(12.0)
     demand = traffic.arrival_rate_pct_5min
     run = dict(ci_target_pct=ci_target_pct, trials=trials, seed=seed, threads=threads)
     job = replace(scenario, traffic=traffic)
+    sweep_cap = min(max_trials, 400_000)
 
     classical = demand_calculation(b, g, traffic, poisson=True)
-    mc = simulate_demand(b, g, traffic, **run)
-    comparison = compare_rules(b, g, rules, mc.passengers_per_trip, traffic=traffic, **run)
-    sweep = demand_sweep(job, demand_points(demand), rules, max_trials=400_000,
+    mc = simulate_demand(b, g, traffic, **run, max_trials=trial_cap(
+        max_trials, passengers_per_car=g.design_load_persons))
+    comparison = compare_rules(b, g, rules, mc.passengers_per_trip, traffic=traffic, **run,
+                               max_trials=trial_cap(max_trials, cars=g.cars, rules=len(rules),
+                                                    passengers_per_car=mc.passengers_per_trip))
+    sweep = demand_sweep(job, demand_points(demand), rules, max_trials=sweep_cap,
                          quiet=quiet, **run)
     opens = demand_sweep(job, [demand], rules, cars_open_list=list(range(1, g.cars + 1)),
-                         max_trials=400_000, quiet=quiet, **run)
+                         max_trials=sweep_cap, quiet=quiet, **run)
     criteria = default_criteria(job)
     sizing = size_group(job, rules, criteria, list(range(1, g.cars + 4)),
-                        [g.rated_load_persons], [g.rated_speed_mps], **run)
+                        [g.rated_load_persons], [g.rated_speed_mps], max_trials=max_trials,
+                        **run)
     design = opens[opens["cars_open"] == g.cars].set_index("rule")
     at_demand = {r["rule"]: {**r, "design_hc": float(
         design.loc[r["rule"], "design_load_handling_capacity_pct_5min"])}
@@ -199,10 +230,46 @@ def _chart_worker():
     "spawn" (a clean interpreter: no threads inherited from the kernels).
     """
     import multiprocessing
+    import signal
     from concurrent.futures import ProcessPoolExecutor
-    with ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("spawn")) as pool:
-        pool.submit(_warm_up)
+    # The helper starts with Ctrl-C blocked (the signal mask is inherited), so that it never
+    # reports one of its own while it starts; here a Ctrl-C meanwhile waits, then ends the
+    # job (and the helper with it). The pool is made first: making it starts
+    # multiprocessing's resource tracker, which unblocks Ctrl-C when it has started.
+    pool = ProcessPoolExecutor(1, mp_context=multiprocessing.get_context("spawn"),
+                               initializer=_ignore_interrupts)
+    block = hasattr(signal, "pthread_sigmask")
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT}) if block else None
+    try:
+        pool.submit(_warm_up)                     # starts the helper process now
+    finally:
+        if block:
+            signal.pthread_sigmask(signal.SIG_SETMASK, previous)
+    try:
         yield pool
+    except BaseException:
+        pool.shutdown(wait=True, cancel_futures=True)   # Ctrl-C or an error: drop queued charts
+        raise
+    pool.shutdown(wait=True)
+
+
+def _ignore_interrupts() -> None:
+    """The chart process leaves Ctrl-C to the main process, which ends the job (and this
+    process with it), and ends itself should the main process end without it (a process
+    pool's helper would otherwise wait for work for ever)."""
+    import os
+    import signal
+    import threading
+    import time
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    parent = os.getppid()
+
+    def watch():
+        while os.getppid() == parent:
+            time.sleep(0.5)
+        os._exit(0)
+
+    threading.Thread(target=watch, daemon=True, name="liftsort-parent-watch").start()
 
 
 def _warm_up() -> None:

@@ -21,6 +21,8 @@ from dataclasses import dataclass, replace
 
 from roundtrip.building import Scenario
 
+from .wording import count_of
+
 DEFAULT_INTERVAL_MAX_S = 30.0
 DEFAULT_HC_MIN_PCT = 12.0
 
@@ -44,15 +46,19 @@ def candidates(cars_list, loads, speeds):
 
 
 def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, speeds, *,
-               poisson: bool = True, trials=None, ci_target_pct: float = 0.5, seed: int = 0,
-               threads=None, on_candidate=None) -> dict:
+               poisson: bool = True, trials=None, ci_target_pct: float = 0.5,
+               max_trials: int = 1_000_000, seed: int = 0, threads=None,
+               on_candidate=None) -> dict:
     """Search the candidates; returns {"designs": [...], "tried": [...], "savings": [...]}.
 
     Every candidate runs all rules still without a design, on common batches; the
-    search stops as soon as every rule has one.
+    search stops as soon as every rule has one. An adaptive run stops at
+    ``max_trials`` or at the run limits (:func:`experiments.limits.trial_cap`).
     """
     from allocation.registry import baseline_rule
     from batchrounds.montecarlo import compare_rules
+
+    from .limits import trial_cap
 
     wanted = list(dict.fromkeys([baseline_rule(), *rules]))
     found: dict[str, dict] = {}
@@ -62,9 +68,12 @@ def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, 
         if not open_rules:
             break
         group = replace(scenario.group, cars=cars, rated_load_persons=load, rated_speed_mps=speed)
+        cap = trial_cap(max_trials, cars=cars, rules=len(open_rules),
+                        passengers_per_car=group.design_load_persons)
         c = compare_rules(scenario.building, group, open_rules, group.design_load_persons,
                           traffic=scenario.traffic, poisson=poisson, trials=trials,
-                          ci_target_pct=ci_target_pct, seed=seed, threads=threads)
+                          ci_target_pct=ci_target_pct, max_trials=cap, seed=seed,
+                          threads=threads)
         for r in c.to_dict()["rules"]:
             ok = (r["interval_s"] <= criteria.interval_max_s
                   and r["handling_capacity_pct_5min"] >= criteria.hc_min_pct)
@@ -88,7 +97,7 @@ def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, 
             designs.append({"rule": rule, "found": False, "cars": None, "rated_load_persons": None,
                             "rated_speed_mps": None, "interval_s": None,
                             "handling_capacity_pct_5min": None, "round_trip_time_s": None,
-                            "message": f"no candidate up to {max(cars_list)} cars x "
+                            "message": f"no candidate up to {count_of(max(cars_list), 'car')} x "
                                        f"{max(loads)} persons at {max(speeds):g} m/s meets "
                                        f"interval <= {criteria.interval_max_s:g} s and handling "
                                        f"capacity >= {criteria.hc_min_pct:g} %"})
@@ -105,11 +114,11 @@ def savings(designs: list[dict]) -> list[dict]:
         if not d["found"]:
             text = f"{d['rule']}: no design meets the criteria"
         elif not base["found"]:
-            text = (f"{d['rule']}: meets the criteria with {d['cars']} cars x "
+            text = (f"{d['rule']}: meets the criteria with {count_of(d['cars'], 'car')} x "
                     f"{d['rated_load_persons']} persons at {d['rated_speed_mps']:g} m/s, "
                     f"where conventional control meets them with none of the candidates")
         elif d["cars"] < base["cars"]:
-            text = f"{d['rule']}: saves {base['cars'] - d['cars']} car(s)"
+            text = f"{d['rule']}: saves {count_of(base['cars'] - d['cars'], 'car')}"
         elif d["rated_load_persons"] < base["rated_load_persons"]:
             text = (f"{d['rule']}: same number of cars, smaller cars "
                     f"({d['rated_load_persons']} instead of {base['rated_load_persons']} persons)")

@@ -23,6 +23,7 @@ from dataclasses import replace
 from roundtrip.building import Scenario, Traffic
 from roundtrip.inputfile import InputError
 
+from .limits import trial_cap
 from .progress import progress_bar
 
 
@@ -52,25 +53,31 @@ def demand_sweep(scenario: Scenario, arrivals, rules, *, cars_list=None, cars_op
     cars_list = cars_list or [scenario.group.cars]
     points = _points(scenario, arrivals, cars_list, cars_open_list)
     designs = sorted({(c, k) for c, k, _ in points})
-    run = dict(poisson=poisson, trials=trials, ci_target_pct=ci_target_pct,
-               max_trials=max_trials, seed=seed, threads=threads)
+    run = dict(poisson=poisson, trials=trials, ci_target_pct=ci_target_pct, seed=seed,
+               threads=threads)
+    n_rules = len(rules) + 1          # the baseline is run too
+    design_load = scenario.group.design_load_persons
+    one_car = trial_cap(max_trials, passengers_per_car=design_load)
     rows = []
     capacity = {}
     with progress_bar(len(points) + len(designs), quiet, scenario.building.name) as bar:
         for cars, k in designs:
             group = replace(scenario.group, cars=cars)
+            cap = trial_cap(max_trials, cars=cars, rules=n_rules, passengers_per_car=design_load)
             c = compare_rules(scenario.building, group, rules, group.design_load_persons,
-                              cars_open=k, traffic=scenario.traffic, **run)
+                              cars_open=k, traffic=scenario.traffic, max_trials=cap, **run)
             for r in c.to_dict()["rules"]:
                 capacity[(cars, k, r["rule"])] = r
             bar.update()
         for cars, k, arrival in points:
             group = replace(scenario.group, cars=cars)
             traffic = replace(base_traffic, arrival_rate_pct_5min=arrival)
-            conventional = simulate_demand(scenario.building, group, traffic, **run)
+            conventional = simulate_demand(scenario.building, group, traffic, max_trials=one_car,
+                                           **run)
             p = conventional.passengers_per_trip
+            cap = trial_cap(max_trials, cars=cars, rules=n_rules, passengers_per_car=p)
             c = compare_rules(scenario.building, group, rules, p, cars_open=k,
-                              traffic=scenario.traffic, **run)
+                              traffic=scenario.traffic, max_trials=cap, **run)
             d = c.to_dict()
             for r in d["rules"]:
                 at_design = capacity[(cars, k, r["rule"])]

@@ -169,8 +169,10 @@ class MonteCarloResult:
 
     @property
     def handling_capacity_persons_5min(self) -> float:
-        """300 s x passengers carried per trip / interval."""
-        return 300.0 * self.passengers_carried.mean / self.interval_s
+        """300 s x passengers carried per trip / interval; 0 when nobody is carried (an empty
+        car with zero door times has a zero round trip)."""
+        carried = self.passengers_carried.mean
+        return 300.0 * carried / self.interval_s if carried > 0 else 0.0
 
     def to_dict(self) -> dict:
         hc = self.handling_capacity_persons_5min

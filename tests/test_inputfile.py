@@ -141,7 +141,7 @@ BAD_FILES = [
     ("missing key", variant(**{"group.rated_load_persons": None}),
      ["group.rated_load_persons is missing"]),
     ("string for a number", variant(**{"group.rated_speed_mps": "1.6"}),
-     ["group.rated_speed_mps = '1.6'", "a speed > 0 [m/s]"]),
+     ['group.rated_speed_mps = "1.6"', "a speed > 0 [m/s]"]),
     ("bool for a number", variant(**{"group.door_open_s": True}), ["group.door_open_s"]),
     ("bool for an integer", variant(**{"group.cars": True}), ["group.cars", "whole number"]),
     ("float for cars", variant(**{"group.cars": 2.5}), ["group.cars = 2.5", "whole number"]),

@@ -4,21 +4,39 @@ Each command lives in its own module (``experiments/cli/<command>.py``),
 imported only when that command runs, so that `liftsort calc` never loads
 numba, pandas or seaborn. The commands call the orchestration of
 :mod:`experiments` (which never imports this package) and print what it
-returns. Errors in input files or options print one paragraph and exit with
-status 2, without a traceback.
+returns.
+
+Every run ends in one of three ways (the guard in :func:`main`):
+
+* exit status 0 with a result;
+* exit status 2 with one paragraph naming what is wrong: an input file or an
+  option (the key or option, its value, what is allowed), or the environment
+  (an output folder that cannot be written, too little memory);
+* exit status 130 with one line after Ctrl-C.
+
+Anything else is a bug: one short message asks for a report (status 1); the
+traceback is shown only with ``--debug``. Output sets are written whole or not
+at all (:func:`experiments.outputs.output_set`).
 """
 from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
+import traceback
+import warnings
 
 from roundtrip import __version__
-from roundtrip.inputfile import InputError, load_scenario
 
-from .options import ci_type, number, passengers_type, seed_type, trials_type, whole
+from .caches import choose_cache_folders
+
+# Only the standard library is imported above: the rest (numpy with it) loads inside
+# main's guard, so that Ctrl-C at any moment after start-up ends in the one line.
 
 EXIT_BAD_INPUT = 2
+EXIT_BUG = 1
+EXIT_INTERRUPTED = 130
 
 
 def _rules_help(names: str | None) -> str:
@@ -44,22 +62,25 @@ def _add_counts(p: argparse.ArgumentParser) -> None:
 
 
 def _add_run_options(p: argparse.ArgumentParser) -> None:
+    from .options import ci_type, max_trials_type, seed_type, threads_type, trials_type
     p.add_argument("--trials", metavar="N", type=trials_type,
                    help="run exactly N trials instead of stopping on --ci-target")
     p.add_argument("--ci-target", metavar="PCT", type=ci_type, default=0.5,
                    help="stop when the 95 %% half-width of the round-trip time is at most "
                         "PCT %% of its mean (default 0.5)")
-    p.add_argument("--max-trials", metavar="N", type=trials_type, default=2_000_000,
-                   help="trial cap of the adaptive run (default 2,000,000)")
+    p.add_argument("--max-trials", metavar="N", type=max_trials_type, default=2_000_000,
+                   help="trial cap of the adaptive run (default 2,000,000; never more than the "
+                        "memory limit allows: 8 million car trips kept per run)")
     p.add_argument("--seed", metavar="S", type=seed_type, default=2026,
                    help="seed of the random stream; the same seed gives the same numbers "
                         "(default 2026)")
-    p.add_argument("--threads", metavar="T", type=whole(1, "T must be a whole number of threads >= 1"),
+    p.add_argument("--threads", metavar="T", type=threads_type,
                    help="compute threads (default: all cores); results do not depend on it")
 
 
 def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentParser:
     """The parser; ``default_rule_names`` (from the registry) only for the help text."""
+    from .options import cars_open_type, hc_type, interval_type, passengers_type
     rules_help = _rules_help(default_rule_names)
     parser = argparse.ArgumentParser(
         prog="liftsort",
@@ -85,7 +106,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     calc.add_argument("--poisson", action="store_true",
                       help="use the Poisson-passenger forms of S and H")
     _add_json(calc)
-    calc.set_defaults(handler="experiments.cli.calc")
+    calc.set_defaults(handler="experiments.cli.calc", compiled=False)
 
     sim = sub.add_parser(
         "simulate", help="Monte Carlo round trips of one car, with 95 %% confidence intervals",
@@ -108,7 +129,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "`random` (conventional control) with paired 95 %% intervals.")
     _add_file(cmp_)
     cmp_.add_argument("--rules", metavar="LIST", help=rules_help)
-    cmp_.add_argument("--cars-open", metavar="K", type=whole(1, "K must be a whole number of cars >= 1"),
+    cmp_.add_argument("--cars-open", metavar="K", type=cars_open_type,
                       help="cars open to allocation at once, 1 ... cars (default: all cars)")
     cmp_.add_argument("--passengers", metavar="P", type=passengers_type,
                       help="mean passengers per car per round [persons] (default: the demand's "
@@ -151,9 +172,9 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "handling capacity >= the file's demand (or 12 %%), common office practice "
                     "(CIBSE Guide D).")
     _add_file(sz)
-    sz.add_argument("--interval-max", metavar="S", type=number(0.0, True, "S must be > 0 [s]"),
+    sz.add_argument("--interval-max", metavar="S", type=interval_type,
                     help="largest acceptable interval at design load [s] (default 30)")
-    sz.add_argument("--hc-min", metavar="PCT", type=number(0.0, True, "PCT must be > 0 [%%]"),
+    sz.add_argument("--hc-min", metavar="PCT", type=hc_type,
                     help="least 5-minute handling capacity [%% of population] (default: the "
                          "file's demand, else 12)")
     sz.add_argument("--cars", metavar="A:B", default="1:10",
@@ -217,26 +238,158 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "(Larkspur Exchange) and print the results.")
     demo.add_argument("--out", metavar="DIR", default="liftsort-demo",
                       help="where the report and charts go (default: liftsort-demo)")
-    demo.add_argument("--seed", metavar="S", type=seed_type, default=2026,
-                      help="seed of the random stream (default 2026)")
+    demo.add_argument("--quiet", action="store_true", help="no progress bar")
+    _add_run_options(demo)
     demo.set_defaults(handler="experiments.cli.demo", file=None)
+    for command in sub.choices.values():
+        _add_debug(command)
+    _add_debug(parser)
+    parser.commands = dict(sub.choices)          # name -> parser, for help and the tests
     return parser
 
 
+def _add_debug(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--debug", action="store_true", default=argparse.SUPPRESS,
+                   help="on an unexpected error, show the traceback (for a bug report)")
+
+
+def _say(command: str, text: str) -> None:
+    name = f"liftsort {command}" if command else "liftsort"
+    print(f"{name}: {text}", file=sys.stderr)
+
+
 def main(argv: list[str] | None = None) -> int:
+    """Run one command; returns the exit status (0, 2, 130; 1 for a bug).
+
+    Library warnings (numpy's on a figure that cannot be estimated from too few trials,
+    which shows as "-" or null) are not shown, except with ``--debug``.
+    """
     argv = sys.argv[1:] if argv is None else list(argv)
-    names = None
-    if "-h" in argv or "--help" in argv:        # only help pays for the registry's import
-        from allocation.registry import default_rules
-        names = ",".join(default_rules())
-    parser = build_parser(names)
-    args = parser.parse_args(argv)
+    with warnings.catch_warnings():
+        if "--debug" not in argv:
+            warnings.simplefilter("ignore")
+        return _main(argv)
+
+
+class _NotLoaded(Exception):
+    """Stands for InputError until its module is loaded."""
+
+
+def _shown(value) -> str:
+    """Text for a message, control characters escaped (standard library only)."""
+    return "".join(c if c.isprintable() or c == " " else repr(c)[1:-1] for c in str(value))
+
+
+def _main(argv: list[str]) -> int:
+    debug = "--debug" in argv
+    command = ""
+    caches = None
+    bad_input = _NotLoaded
     try:
+        from roundtrip.inputfile import InputError as bad_input
+        from roundtrip.inputfile import load_scenario
+        names = None
+        if "-h" in argv or "--help" in argv:    # only help pays for the registry's import
+            caches = choose_cache_folders()
+            _ON_EXIT.append(caches.remove)
+            from allocation.registry import default_rules
+            names = ",".join(default_rules())
+        parser = build_parser(names)
+        args = parser.parse_args(argv)
+        command = args.command
+        if caches is None and getattr(args, "compiled", True):
+            caches = choose_cache_folders()
+            _ON_EXIT.append(caches.remove)
+            if caches.note:
+                print(caches.note, file=sys.stderr)
         scenario = load_scenario(args.file) if args.file is not None else None
         module = importlib.import_module(args.handler)
         return module.run(args, scenario)
-    except InputError as exc:
-        print(f"liftsort {args.command}: error: {exc}", file=sys.stderr)
+    except bad_input as exc:
+        _say(command, f"error: {exc}")
         return EXIT_BAD_INPUT
+    except KeyboardInterrupt:
+        _say(command, "interrupted; no partial output is left.")
+        return EXIT_INTERRUPTED
     except BrokenPipeError:
+        _quiet_stdout()
         return 0
+    except MemoryError:
+        _say(command, "error: not enough memory for this run; give fewer --trials, a larger "
+                      "--ci-target or a smaller building, or free some memory.")
+        return EXIT_BAD_INPUT
+    except OSError as exc:
+        where = f"{_shown(exc.filename)}: " if getattr(exc, "filename", None) else ""
+        _say(command, f"error: {where}{_shown(exc.strerror or exc)}.")
+        return EXIT_BAD_INPUT
+    except Exception as exc:                      # a bug: say so briefly, ask for a report
+        if debug:
+            traceback.print_exc()
+        hint = "" if debug else " (run it again with --debug to see the traceback)"
+        _say(command, f"internal error: {type(exc).__name__}: {_shown(exc)}. This is a bug "
+                      f"in liftsort; please report it with the input file and the command "
+                      f"line{hint}.")
+        return EXIT_BUG
+    finally:
+        if caches is not None:
+            caches.remove()
+            if caches.remove in _ON_EXIT:
+                _ON_EXIT.remove(caches.remove)
+
+
+def entry() -> None:
+    """The `liftsort` program: :func:`main`, then exit with its status.
+
+    As a program (not when :func:`main` is called from Python), Ctrl-C is answered at
+    once by :func:`_interrupted`: one line, the unfinished output set and the temporary
+    cache removed, exit status 130. Python would otherwise turn it into an exception
+    wherever the program happens to be, and where it cannot be raised (a callback of
+    numba's compiler, a finaliser) it prints a stray "Exception ignored" report instead.
+    """
+    import signal
+    signal.signal(signal.SIGINT, _interrupted)
+    if "--debug" not in sys.argv:
+        # helper processes (multiprocessing's resource tracker among them) inherit it
+        os.environ.setdefault("PYTHONWARNINGS", "ignore")
+    status = main()
+    try:
+        sys.stdout.flush()
+    except (BrokenPipeError, ValueError, OSError):
+        _quiet_stdout()
+    signal.signal(signal.SIGINT, signal.SIG_IGN)     # the command has ended
+    sys.exit(status)
+
+
+def _interrupted(signum, frame) -> None:
+    """Ctrl-C in the program: say so in one line, leave nothing unfinished, exit 130."""
+    command = next((a for a in sys.argv[1:] if not a.startswith("-")), "")
+    try:
+        sys.stdout.flush()
+    except (OSError, ValueError):
+        pass
+    _say(command if command.isidentifier() else "", "interrupted; no partial output is left.")
+    for remove in list(_ON_EXIT):
+        try:
+            remove()
+        except Exception:                             # nothing more can be done here
+            pass
+    if "experiments.outputs" in sys.modules:
+        sys.modules["experiments.outputs"].remove_unfinished_sets()
+    if "multiprocessing" in sys.modules:                # the chart process of a report
+        for child in sys.modules["multiprocessing"].active_children():
+            child.terminate()
+            child.join(2)
+    os._exit(EXIT_INTERRUPTED)
+
+
+#: What the program removes when interrupted (the temporary cache folder).
+_ON_EXIT: list = []
+
+
+def _quiet_stdout() -> None:
+    """After a closed pipe, send what is left of stdout nowhere (no second error at exit)."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError, AttributeError):
+        pass

@@ -1,6 +1,4 @@
 """`python -m experiments.cli`: the same as the `liftsort` command."""
-import sys
+from . import entry
 
-from . import main
-
-sys.exit(main())
+entry()

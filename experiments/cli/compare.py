@@ -2,24 +2,38 @@
 from __future__ import annotations
 
 from roundtrip.building import Scenario
+from roundtrip.inputfile import InputError
 
 from experiments.estimates import comparison_run
-from experiments.wording import CAUTION
+from experiments.wording import CAUTION, count_of
 
-from .options import check_cars_open, parse_rules
+from .options import (check_cars_open, check_rules_fit, check_trials, parse_rules,
+                      target_note)
 from .tables import dumps, grid_table
 
 
 def run(args, scenario: Scenario) -> int:
-    check_cars_open(args.cars_open, scenario.group.cars)
-    d = comparison_run(scenario, parse_rules(args.rules), args.passengers,
+    group = scenario.group
+    check_cars_open(args.cars_open, group.cars)
+    rules = parse_rules(args.rules)
+    if args.passengers is not None and args.passengers <= 0:
+        raise InputError([f"--passengers {args.passengers:g}: comparing rules needs "
+                          f"passengers to allocate; give P > 0 [persons per car]."])
+    most = group.design_load_persons if args.passengers is None else args.passengers
+    check_trials(args.trials, cars=group.cars, rules=len(rules) + 1, passengers_per_car=most)
+    if args.passengers is not None:
+        check_rules_fit(rules, poisson=not args.fixed, cars=group.cars,
+                        cars_open=args.cars_open or group.cars,
+                        passengers_per_car=args.passengers)
+    d = comparison_run(scenario, rules, args.passengers,
                        cars_open=args.cars_open, poisson=not args.fixed, trials=args.trials,
                        ci_target_pct=args.ci_target, max_trials=args.max_trials, seed=args.seed,
                        threads=args.threads).to_dict()
     if args.json:
         print(dumps(d))
         return 0
-    print(f"{d['building']}: allocation rules on common passengers ({d['cars']} cars, "
+    print(f"{d['building']}: allocation rules on common passengers "
+          f"({count_of(d['cars'], 'car')}, "
           f"{d['cars_open']} open to allocation, {d['passengers_per_car']:.2f} passengers per car "
           f"({d['passenger_model']}), {d['trials']:,} batches, seed {d['seed']})")
     rows = [[r["rule"], r["round_trip_time_s"], r["ci95_s"], r["interval_s"],
@@ -30,6 +44,11 @@ def run(args, scenario: Scenario) -> int:
                       "load [%]", "RTT gain [%]", "+/-", "HC gain [%]", "+/-"], rows))
     print("\nGains are against `random` (conventional control) on the same batches; "
           "+/- are paired 95 % intervals.")
+    note = target_note(args, max(100 * r["ci95_s"] / r["round_trip_time_s"] for r in d["rules"]
+                                 if r["round_trip_time_s"] > 0) if d["rules"] else 0.0,
+                       d["trials"])
+    if note:
+        print("\n" + note)
     if d["saturated_under_random"]:
         print("Demand mode: conventional control is saturated at this demand, so the rules are "
               "compared at the design load.")

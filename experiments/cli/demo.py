@@ -5,10 +5,11 @@ from roundtrip.inputfile import load_scenario
 
 from experiments.data import demo_building_path
 from experiments.estimates import classical_result
-from experiments.outputs import output_dir
+from experiments.outputs import output_set
 from experiments.wording import CAUTION
 
 from .calc import print_classical
+from .report import check_job_trials, published
 from .tables import grid_table
 
 
@@ -16,11 +17,15 @@ def run(args, scenario=None) -> int:
     from experiments.report_job import run_job
     path = demo_building_path()
     scenario = load_scenario(path)
-    print_classical(classical_result(scenario, None, False),
-                    f"{scenario.building.name} (invented demo building): classical "
-                    f"up-peak calculation (demand mode)")
-    out = output_dir(args.out)
-    result = run_job(scenario, path, out, seed=args.seed, quiet=False)
+    check_job_trials(args.trials, scenario)
+    with output_set(args.out, command="demo") as outs:
+        print_classical(classical_result(scenario, None, False),
+                        f"{scenario.building.name} (invented demo building): classical "
+                        f"up-peak calculation (demand mode)")
+        result = published(run_job(scenario, path, outs.folder, seed=args.seed,
+                                   ci_target_pct=args.ci_target, trials=args.trials,
+                                   max_trials=args.max_trials, quiet=args.quiet,
+                                   threads=args.threads), outs)
     m = result["monte_carlo"]
     print(f"\nMonte Carlo, conventional control at the demand: round-trip time "
           f"{m['round_trip_time_s']:.1f} s ± {m['ci95_s']:.1f} s, interval {m['interval_s']:.1f} s"

@@ -6,10 +6,13 @@ from roundtrip.building import Scenario
 from experiments.estimates import classical_result, monte_carlo_result
 from experiments.wording import CAUTION
 
+from .options import check_trials, target_note
 from .tables import dumps, grid_table
 
 
 def run(args, scenario: Scenario) -> int:
+    most = scenario.group.design_load_persons if args.passengers is None else args.passengers
+    check_trials(args.trials, passengers_per_car=most)
     r = monte_carlo_result(scenario, args.passengers, poisson=not args.fixed, trials=args.trials,
                            ci_target_pct=args.ci_target, max_trials=args.max_trials,
                            seed=args.seed, threads=args.threads)
@@ -52,5 +55,9 @@ def run(args, scenario: Scenario) -> int:
         elif not r.converged:
             print("\nThe fixed point did not settle within the iteration limit; "
                   "the last iterate is shown.")
+    rtt = d["round_trip_time_s"]
+    note = target_note(args, 100 * d["ci95_s"] / rtt if rtt > 0 else 0.0, r.trials)
+    if note:
+        print("\n" + note)
     print("\n" + CAUTION)
     return 0

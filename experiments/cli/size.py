@@ -7,24 +7,38 @@ from experiments.progress import progress_bar
 from experiments.sizing import default_criteria, size_group
 from experiments.wording import CAUTION
 
-from .options import parse_range, parse_rules
+from .options import (CARS, LOADS, SPEEDS, check_rules_fit, check_runs, check_trials,
+                      parse_range, parse_rules)
 from .tables import dumps, grid_table
 
 
-def sizing(scenario: Scenario, args) -> dict:
-    cars = parse_range(args.cars, "--cars", whole=True, low=1, most=60)
-    loads = parse_range(args.loads, "--loads", whole=True, low=1) if args.loads else \
-        [scenario.group.rated_load_persons]
-    speeds = parse_range(args.speeds, "--speeds", whole=False, low=1e-9) if args.speeds else \
-        [scenario.group.rated_speed_mps]
+def sizing_plan(scenario: Scenario, args) -> dict:
+    """The candidates and rules from the options, every one checked before any work."""
+    cars = parse_range(args.cars, "--cars", whole=True, low=1, plausible=CARS)
+    loads = parse_range(args.loads, "--loads", whole=True, low=1, plausible=LOADS) \
+        if args.loads else [scenario.group.rated_load_persons]
+    speeds = parse_range(args.speeds, "--speeds", whole=False, low=0.0, plausible=SPEEDS) \
+        if args.speeds else [scenario.group.rated_speed_mps]
     rules = parse_rules(args.rules)
+    check_runs(len(cars) * len(loads) * len(speeds), "--cars x --loads x --speeds")
+    factor = scenario.group.capacity_factor
+    for c in cars:
+        check_rules_fit(rules, poisson=not args.fixed, cars=c, cars_open=c,
+                        passengers_per_car=factor * max(loads))
+    check_trials(args.trials, cars=max(cars), rules=len(rules) + 1,
+                 passengers_per_car=factor * max(loads))
+    return dict(cars=cars, loads=loads, speeds=speeds, rules=rules)
+
+
+def sizing(scenario: Scenario, args) -> dict:
+    plan = sizing_plan(scenario, args)
     criteria = default_criteria(scenario, args.interval_max, args.hc_min)
-    total = len(cars) * len(loads) * len(speeds)
+    total = len(plan["cars"]) * len(plan["loads"]) * len(plan["speeds"])
     with progress_bar(total, args.quiet or args.json, "sizing") as bar:
-        result = size_group(scenario, rules, criteria, cars, loads, speeds,
-                            poisson=not args.fixed, trials=args.trials,
-                            ci_target_pct=args.ci_target, seed=args.seed, threads=args.threads,
-                            on_candidate=bar.update)
+        result = size_group(scenario, plan["rules"], criteria, plan["cars"], plan["loads"],
+                            plan["speeds"], poisson=not args.fixed, trials=args.trials,
+                            ci_target_pct=args.ci_target, max_trials=args.max_trials,
+                            seed=args.seed, threads=args.threads, on_candidate=bar.update)
     return {"building": scenario.building.name, **result}
 
 

@@ -2,34 +2,64 @@
 from __future__ import annotations
 
 from roundtrip.building import Scenario
+from roundtrip.inputfile import ARRIVAL_RATE, InputError
 
-from experiments.outputs import output_dir, write_atomic
+from experiments.outputs import output_set, write_atomic
 from experiments.sweep import demand_sweep
 from experiments.wording import CAUTION
 
-from .options import parse_range, parse_rules
+from .options import (CARS, check_rules_fit, check_runs, check_trials, parse_range,
+                      parse_rules)
 from .tables import dumps, grid_table
 
 
-def sweep_table(scenario: Scenario, args):
-    arrivals = parse_range(args.arrival, "--arrival", whole=False, low=1e-9)
-    cars = parse_range(args.cars, "--cars", whole=True, low=1) if args.cars else None
-    opens = parse_range(args.cars_open, "--cars-open", whole=True, low=1) if args.cars_open else None
+def sweep_plan(scenario: Scenario, args) -> dict:
+    """The sweep's points and rules from the options, every one checked before any work."""
+    arrivals = parse_range(args.arrival, "--arrival", whole=False, low=0.0,
+                           plausible=ARRIVAL_RATE)
+    cars = parse_range(args.cars, "--cars", whole=True, low=1, plausible=CARS) \
+        if args.cars else None
+    opens = parse_range(args.cars_open, "--cars-open", whole=True, low=1, plausible=CARS) \
+        if args.cars_open else None
     rules = parse_rules(args.rules)
-    return demand_sweep(scenario, arrivals, rules, cars_list=cars, cars_open_list=opens,
-                        poisson=not args.fixed, trials=args.trials, ci_target_pct=args.ci_target,
-                        max_trials=args.max_trials, seed=args.seed, quiet=args.quiet or args.json,
-                        threads=args.threads)
+    groups = cars or [scenario.group.cars]
+    per_group = [len([k for k in opens if k <= c]) if opens else 1 for c in groups]
+    if not sum(per_group):
+        raise InputError([f"--cars-open {args.cars_open}: every value exceeds every number of "
+                          f"cars ({', '.join(map(str, groups))}); cars open must be at most "
+                          f"the cars."])
+    check_runs(len(arrivals) * sum(per_group) + sum(per_group),
+               "--arrival x --cars x --cars-open")
+    design = scenario.group.design_load_persons
+    for c in groups:
+        for k in ([k for k in opens if k <= c] if opens else [c]):
+            check_rules_fit(rules, poisson=not args.fixed, cars=c, cars_open=k,
+                            passengers_per_car=design)
+    check_trials(args.trials, cars=max(groups), rules=len(rules) + 1,
+                 passengers_per_car=design)
+    return dict(arrivals=arrivals, rules=rules, cars_list=cars, cars_open_list=opens)
+
+
+def sweep_table(scenario: Scenario, args, plan: dict | None = None):
+    plan = sweep_plan(scenario, args) if plan is None else plan
+    return demand_sweep(scenario, plan["arrivals"], plan["rules"], cars_list=plan["cars_list"],
+                        cars_open_list=plan["cars_open_list"], poisson=not args.fixed,
+                        trials=args.trials, ci_target_pct=args.ci_target,
+                        max_trials=args.max_trials, seed=args.seed,
+                        quiet=args.quiet or args.json, threads=args.threads)
 
 
 def run(args, scenario: Scenario) -> int:
-    table = sweep_table(scenario, args)
-    out = output_dir(args.out)
-    csv_path = write_atomic(out / "sweep.csv", table.to_csv(index=False))
-    charts = []
-    if not args.no_charts:
-        from experiments.charts import sweep_charts
-        charts = sweep_charts(table, out, scenario.building.name)
+    plan = sweep_plan(scenario, args)
+    with output_set(args.out, command="sweep") as outs:
+        table = sweep_table(scenario, args, plan)
+        csv_path = outs.final_path(write_atomic(outs.folder / "sweep.csv",
+                                                table.to_csv(index=False)))
+        charts = []
+        if not args.no_charts:
+            from experiments.charts import sweep_charts
+            charts = [outs.final_path(p)
+                      for p in sweep_charts(table, outs.folder, scenario.building.name)]
     if args.json:
         print(dumps({"building": scenario.building.name, "csv": str(csv_path),
                      "charts": [str(p) for p in charts],

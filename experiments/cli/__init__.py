@@ -190,6 +190,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     _add_json(sz)
     sz.set_defaults(handler="experiments.cli.size")
 
+    from .options import number, seed_type, threads_type, whole
     pk = sub.add_parser(
         "peak", help="time-based peak simulation: waiting time and time to destination, per control",
         description="Simulate the group through a peak period passenger by passenger (Poisson "
@@ -203,19 +204,26 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     help="comma-separated controls: conventional, a batch rule (delayed "
                          "allocation) or an immediate policy (default: every shipped control; "
                          "`docs/rules.md` lists them)")
-    pk.add_argument("--window", metavar="S", type=number(0.0, True, "S must be > 0 [s]"),
+    pk.add_argument("--window", metavar="S",
+                    type=number(0.0, True, "S must be a window > 0 and at most 120 [s]",
+                                high=120.0),
                     help="allocation window of delayed allocation [s] (default 5)")
-    pk.add_argument("--minutes", metavar="M", type=number(0.0, True, "M must be > 0 [min]"),
+    pk.add_argument("--minutes", metavar="M",
+                    type=number(0.0, True, "M must be a period > 0 and at most 240 [min]",
+                                high=240.0),
                     help="the measured period [min] (default 60, or the demand profile's length)")
-    pk.add_argument("--warmup-minutes", metavar="W", type=number(0.0, False, "W must be >= 0 [min]"),
+    pk.add_argument("--warmup-minutes", metavar="W",
+                    type=number(0.0, False, "W must be a warm-up from 0 to 120 [min]", high=120.0),
                     default=5.0, help="simulated before the measured period, not measured "
                                       "[min] (default 5)")
-    pk.add_argument("--replications", metavar="R", type=whole(2, "R must be a whole number >= 2"),
+    pk.add_argument("--replications", metavar="R",
+                    type=whole(2, "R must be a whole number of replications from 2 to 1000",
+                               high=1000),
                     help="exactly R replications (default: enough for a 5 %% interval on every "
                          "control's average wait, at most 200)")
     pk.add_argument("--seed", metavar="S", type=seed_type, default=2026,
                     help="seed of the replications' random streams (default 2026)")
-    pk.add_argument("--threads", metavar="T", type=whole(1, "T must be a whole number of threads >= 1"),
+    pk.add_argument("--threads", metavar="T", type=threads_type,
                     help="compute threads (default: all cores); results do not depend on it")
     _add_json(pk)
     pk.set_defaults(handler="experiments.cli.peak")

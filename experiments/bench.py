@@ -149,12 +149,14 @@ def peak_figures(replications: int = 40) -> dict:
 
         def whole():
             fresh = arrival_streams(b, traffic, period, 2, 0, replications)
-            for (t, _), (rows, trips) in zip(fresh, run_rows(b, g, control, fresh)):
+            for (t, _), (rows, trips) in zip(fresh, run_rows(b, g, control, fresh, threads=1)):
                 S.replication_figures(t, rows, trips, period.measure_start_s,
                                       period.measure_end_s, b.total_population, g.door_open_s)
                 S.slot_figures(t, rows, period.measure_start_s, period.measure_end_s)
-        loop = n / best_of(lambda: run_rows(b, g, control, streams), 3)
+        loop = n / best_of(lambda: run_rows(b, g, control, streams, threads=1), 3)
         out[f"peak_{control.name}_loop_passengers_per_s_1_thread"] = loop
+        out[f"peak_{control.name}_loop_two_thread_speedup"] = n / best_of(
+            lambda: run_rows(b, g, control, streams, threads=2), 3) / loop
         out[f"peak_{control.name}_replication_passengers_per_s_1_thread"] = n / best_of(whole, 3)
     out["peak_conventional_simulated_hour_ms"] = 1e3 * (n / replications) / out[
         "peak_conventional_replication_passengers_per_s_1_thread"] * 3600.0 / period.measured_s

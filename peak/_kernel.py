@@ -63,10 +63,33 @@ from roundtrip.schedule import new_schedule, new_scratch, trip_schedule
 
 CONVENTIONAL, DELAYED, IMMEDIATE = 0, 1, 2
 FUTURE, OPEN, CLOSED = 0, 1, 2
-# out.counters columns
-N_TRIPS, N_ROUNDS, ERROR, N_COUNTERS = 0, 1, 2, 3
+# counters: the next sequence number, trips made, allocation rounds, an error code, the
+# sequence number of the window
+SEQ, N_TRIPS, N_ROUNDS, ERROR, WINDOW_SEQ, N_COUNTERS = range(6)
 NO_ERROR, ERROR_RULE_PLACED_NOBODY, ERROR_POLICY_NO_CAR = 0, 1, 2
 _MAX_IDLE_ROUNDS = 1000
+
+i8, u8, f8 = np.int64, np.uint64, np.float64
+#: One row per passenger.
+PASSENGER = np.dtype([("car", i8), ("trip", i8), ("alloc_s", f8), ("ready_s", f8),
+                      ("board_s", f8), ("alight_s", f8), ("next", i8)], align=True)
+#: One row per trip (a car's visit to the lobby and the flight after it).
+TRIP = np.dtype([("car", i8), ("state", i8), ("load", i8), ("stops", i8), ("mask", u8),
+                 ("head", i8), ("tail", i8), ("next_trip", i8), ("open_s", f8),
+                 ("first_board_s", f8), ("board_free_s", f8), ("depart_s", f8),
+                 ("return_s", f8), ("next_open_s", f8)], align=True)
+#: One row per car: its trips at the lobby and last, its door opening and dwell timer.
+CAR = np.dtype([("head", i8), ("tail", i8), ("open_t", f8), ("open_seq", i8), ("timer_t", f8),
+                ("timer_seq", i8), ("timer_trip", i8)], align=True)
+_FIELDS_DOC = """
+Passenger rows: ``car``, ``trip``; ``alloc_s`` committed to their trip; ``ready_s``
+their car at the lobby, doors open for them; ``board_s`` starts to board;
+``alight_s`` out at their floor (``next`` links the passengers of a trip).
+Trip rows: ``car``; ``state`` (future, open, closed); ``load`` passengers committed
+(at departure: aboard); ``stops`` above the lobby; ``mask`` their floors; ``open_s``
+doors open at the lobby; ``first_board_s`` (inf: nobody); ``depart_s`` and
+``return_s`` (nan: never left); the rest is the loop's bookkeeping.
+"""
 
 
 class PeakSetup(NamedTuple):
@@ -89,299 +112,264 @@ class Arrivals(NamedTuple):
 
 
 class PeakOut(NamedTuple):
-    """One row per passenger and one per trip (see :func:`new_out`)."""
+    """One run's rows (see the field notes of :data:`PASSENGER` and :data:`TRIP`)."""
 
-    car: np.ndarray            # int64, per passenger
-    trip: np.ndarray           # int64
-    alloc_s: np.ndarray        # float64: committed to their trip
-    ready_s: np.ndarray        # float64: their car at the lobby, doors open for them
-    board_s: np.ndarray        # float64: starts to board
-    alight_s: np.ndarray       # float64: out at their floor
-    trip_car: np.ndarray       # int64, per trip
-    trip_load: np.ndarray      # int64: passengers at departure
-    trip_stops: np.ndarray     # int64: stops above the lobby
-    trip_open_s: np.ndarray    # float64: doors open at the lobby
-    trip_first_board_s: np.ndarray  # float64: first boarding (inf: nobody)
-    trip_depart_s: np.ndarray  # float64: leaves the lobby (nan: never left)
-    trip_return_s: np.ndarray  # float64: back at the lobby (nan: never left)
+    passengers: np.ndarray     # PASSENGER, one per arrival
+    trips: np.ndarray          # TRIP, at most passengers + cars
     counters: np.ndarray       # int64, N_COUNTERS
 
 
 def new_out(passengers: int, cars: int) -> PeakOut:
-    """Output arrays for a run of ``passengers`` passengers and ``cars`` cars."""
-    n = max(passengers, 1)
-    m = passengers + cars + 1           # every trip but each car's last carries someone
-    f = np.full
-    return PeakOut(f(n, -1, np.int64), f(n, -1, np.int64), f(n, np.nan), f(n, np.nan),
-                   f(n, np.nan), f(n, np.nan), f(m, -1, np.int64), np.zeros(m, np.int64),
-                   np.zeros(m, np.int64), f(m, np.nan), f(m, np.inf), f(m, np.nan),
-                   f(m, np.nan), np.zeros(N_COUNTERS, np.int64))
+    """Output rows for a run of ``passengers`` passengers and ``cars`` cars."""
+    return PeakOut(empty_passengers(passengers), empty_trips(passengers + cars + 1),
+                   np.zeros(N_COUNTERS, np.int64))
 
 
-class _Trips(NamedTuple):
-    state: np.ndarray          # FUTURE, OPEN, CLOSED
-    load: np.ndarray           # committed passengers
-    mask: np.ndarray           # uint64 destinations committed
-    head: np.ndarray           # first committed passenger (-1)
-    tail: np.ndarray           # last committed passenger (-1)
-    board_free: np.ndarray     # end of the last boarding
-    next_trip: np.ndarray      # the car's trip after this one (-1)
-    next_open: np.ndarray      # when the doors open for that trip (inf: unknown)
+def empty_passengers(n: int) -> np.ndarray:
+    rows = np.zeros(max(n, 1), dtype=PASSENGER)
+    rows["car"] = rows["trip"] = rows["next"] = -1
+    for f in ("alloc_s", "ready_s", "board_s", "alight_s"):
+        rows[f] = np.nan
+    return rows
 
 
-class _Calendar(NamedTuple):
-    """The scheduled events: per car its next door opening and its dwell timer, and the
-    allocation window; each entry with its sequence number (ties go by it)."""
-
-    open_t: np.ndarray         # float64, per car (inf: none)
-    open_seq: np.ndarray       # int64
-    timer_t: np.ndarray        # float64, per car (inf: none)
-    timer_seq: np.ndarray      # int64
-    timer_trip: np.ndarray     # int64: the trip the timer belongs to
-    window: np.ndarray         # float64 [time, sequence number]
-    seq: np.ndarray            # int64 [the next sequence number]
+def empty_trips(m: int) -> np.ndarray:
+    rows = np.zeros(max(m, 1), dtype=TRIP)
+    rows["car"] = rows["head"] = rows["tail"] = rows["next_trip"] = -1
+    rows["open_s"] = rows["depart_s"] = rows["return_s"] = np.nan
+    rows["first_board_s"] = rows["next_open_s"] = np.inf
+    return rows
 
 
-class _Work(NamedTuple):
-    """What the helpers of the loop share (one record, so their signatures stay short)."""
+class _Buffers(NamedTuple):
+    """Working arrays of one trip's flight."""
 
-    trips: _Trips
-    cal: _Calendar
-    pax_next: np.ndarray       # the next passenger committed to the same trip (-1)
-    car_head: np.ndarray       # per car: the trip at the lobby, or the next to open
-    car_tail: np.ndarray       # per car: the last trip of its chain
-    buf_orig: np.ndarray       # a trip's passengers for the schedule
-    buf_dest: np.ndarray
+    orig: np.ndarray           # int64, departure load: zeros (everyone boards at the lobby)
+    dest: np.ndarray           # int64
     scratch: object            # roundtrip.schedule.TripScratch
     sched: object              # roundtrip.schedule.ScheduleOut
 
 
 @njit(cache=True, inline="always")
-def _next_seq(cal):
-    s = cal.seq[0]
-    cal.seq[0] = s + 1
+def _next_seq(counters):
+    s = counters[SEQ]
+    counters[SEQ] = s + 1
     return s
 
 
 @njit(cache=True, inline="always")
-def _new_trip(w, out, car, open_s, state):
-    tr = out.counters[N_TRIPS]
-    out.counters[N_TRIPS] += 1
-    out.trip_car[tr] = car
-    out.trip_open_s[tr] = open_s
-    w.trips.state[tr] = state
-    w.trips.board_free[tr] = open_s
+def _new_trip(trips, counters, car, open_s, state):
+    tr = counters[N_TRIPS]
+    counters[N_TRIPS] += 1
+    t = trips[tr]
+    t["car"] = car
+    t["state"] = state
+    t["open_s"] = open_s
+    t["board_free_s"] = open_s
     return tr
 
 
-@njit(cache=True, inline="always")
-def _fly(tr, dep, w, out, arrivals, timing):
+@njit(cache=True, **WITHOUT_RUNTIME)
+def _fly(tr, dep, pax, trips, arrivals, timing, buf):
     """The closed trip ``tr`` leaves at ``dep``: each passenger's moment out, the return."""
-    trips = w.trips
     n = 0
-    i = trips.head[tr]
+    i = trips[tr]["head"]
     while i >= 0:
-        w.buf_dest[n] = arrivals.destination[i]
+        buf.dest[n] = arrivals.destination[i]
         n += 1
-        i = w.pax_next[i]
-    entries, _ = trip_schedule(w.buf_orig[:n], w.buf_dest[:n], n, timing, w.scratch, w.sched)
-    depart0 = w.sched.depart_s[0]
+        i = pax[i]["next"]
+    entries, _ = trip_schedule(buf.orig[:n], buf.dest[:n], n, timing, buf.scratch, buf.sched)
+    depart0 = buf.sched.depart_s[0]
     j = 0
-    i = trips.head[tr]
+    i = trips[tr]["head"]
     while i >= 0:
-        out.alight_s[i] = dep + (w.sched.alight_s[j] - depart0)
+        pax[i]["alight_s"] = dep + (buf.sched.alight_s[j] - depart0)
         j += 1
-        i = w.pax_next[i]
-    ret = dep + (w.sched.arrive_s[entries - 1] - depart0)
-    out.trip_depart_s[tr] = dep
-    out.trip_return_s[tr] = ret
-    out.trip_load[tr] = n
-    out.trip_stops[tr] = entries - 2
-    trips.next_open[tr] = ret + timing.door_open_s
+        i = pax[i]["next"]
+    ret = dep + (buf.sched.arrive_s[entries - 1] - depart0)
+    t = trips[tr]
+    t["depart_s"] = dep
+    t["return_s"] = ret
+    t["stops"] = entries - 2
+    t["next_open_s"] = ret + timing.door_open_s
 
 
 @njit(cache=True, inline="always")
-def _successor(tr, w, out):
+def _successor(tr, trips, cars, counters):
     """The car's trip after ``tr`` (made when first needed; its opening is known)."""
-    nxt = w.trips.next_trip[tr]
+    nxt = trips[tr]["next_trip"]
     if nxt < 0:
-        car = out.trip_car[tr]
-        nxt = _new_trip(w, out, car, w.trips.next_open[tr], FUTURE)
-        w.trips.next_trip[tr] = nxt
-        if w.car_tail[car] == tr:
-            w.car_tail[car] = nxt
+        car = trips[tr]["car"]
+        nxt = _new_trip(trips, counters, car, trips[tr]["next_open_s"], FUTURE)
+        trips[tr]["next_trip"] = nxt
+        if cars[car]["tail"] == tr:
+            cars[car]["tail"] = nxt
     return nxt
 
 
 @njit(cache=True, inline="always")
-def _board(i, tr, w, out, setup, t_in):
+def _board(i, tr, pax, trips, cars, counters, setup, t_in):
     """Committed passenger ``i`` boards the open trip ``tr``: ready at max(allocation, doors
     open), boards from max(ready, end of the previous boarding). The trip's first boarding
     starts its dwell timer, unless it is already full."""
-    trips = w.trips
-    ready = max(out.alloc_s[i], out.trip_open_s[tr])
-    b = max(ready, trips.board_free[tr])
-    trips.board_free[tr] = b + t_in
-    out.ready_s[i] = ready
-    out.board_s[i] = b
-    if out.trip_first_board_s[tr] == np.inf:
-        out.trip_first_board_s[tr] = b
-        if trips.load[tr] < setup.departure_load:
-            car = out.trip_car[tr]
-            w.cal.timer_t[car] = b + setup.lobby_dwell_s
-            w.cal.timer_seq[car] = _next_seq(w.cal)
-            w.cal.timer_trip[car] = tr
+    t = trips[tr]
+    ready = max(pax[i]["alloc_s"], t["open_s"])
+    b = max(ready, t["board_free_s"])
+    t["board_free_s"] = b + t_in
+    pax[i]["ready_s"] = ready
+    pax[i]["board_s"] = b
+    if t["first_board_s"] == np.inf:
+        t["first_board_s"] = b
+        if t["load"] < setup.departure_load:
+            c = cars[t["car"]]
+            c["timer_t"] = b + setup.lobby_dwell_s
+            c["timer_seq"] = _next_seq(counters)
+            c["timer_trip"] = tr
 
 
-@njit(cache=True, inline="always")
-def _close(tr, t_close, w, out, arrivals, timing, setup):
+@njit(cache=True, **WITHOUT_RUNTIME)
+def _close(tr, t_close, pax, trips, cars, counters, arrivals, timing, setup, buf):
     """The open trip ``tr`` takes no one more from ``t_close``: the doors close, the car
     starts and flies; its next trip becomes the car's trip at the lobby, its opening is
     scheduled and the trip's dwell timer, if any, is cancelled."""
-    w.trips.state[tr] = CLOSED
+    trips[tr]["state"] = CLOSED
     dep = (t_close + setup.door_close_s) + setup.start_delay_s
-    _fly(tr, dep, w, out, arrivals, timing)
-    car = out.trip_car[tr]
-    nxt = _successor(tr, w, out)
-    w.car_head[car] = nxt
-    if w.cal.timer_trip[car] == tr:
-        w.cal.timer_t[car] = np.inf
-        w.cal.timer_trip[car] = -1
-    w.cal.open_t[car] = out.trip_open_s[nxt]
-    w.cal.open_seq[car] = _next_seq(w.cal)
+    _fly(tr, dep, pax, trips, arrivals, timing, buf)
+    car = trips[tr]["car"]
+    nxt = _successor(tr, trips, cars, counters)
+    c = cars[car]
+    c["head"] = nxt
+    if c["timer_trip"] == tr:
+        c["timer_t"] = np.inf
+        c["timer_trip"] = -1
+    c["open_t"] = trips[nxt]["open_s"]
+    c["open_seq"] = _next_seq(counters)
 
 
-@njit(cache=True, inline="always")
-def _commit(i, tr, t, w, out, arrivals, timing, setup):
+@njit(cache=True, **WITHOUT_RUNTIME)
+def _commit(i, tr, t, pax, trips, cars, counters, arrivals, timing, setup, buf):
     """Passenger ``i`` is committed to trip ``tr`` at ``t``: boards at once if it is open;
     a trip made full closes (open) or has its departure fixed (future: its committed
     passengers board from its opening one after another, as :func:`_board` will board
     them, and the car leaves at the end)."""
-    trips = w.trips
-    out.alloc_s[i] = t
-    out.car[i] = out.trip_car[tr]
-    out.trip[i] = tr
-    if trips.tail[tr] >= 0:
-        w.pax_next[trips.tail[tr]] = i
+    row = trips[tr]
+    p = pax[i]
+    p["alloc_s"] = t
+    p["car"] = row["car"]
+    p["trip"] = tr
+    if row["tail"] >= 0:
+        pax[row["tail"]]["next"] = i
     else:
-        trips.head[tr] = i
-    trips.tail[tr] = i
-    trips.load[tr] += 1
-    trips.mask[tr] |= np.uint64(1) << np.uint64(arrivals.destination[i])
-    if trips.state[tr] == OPEN:
-        _board(i, tr, w, out, setup, timing.transfer_in_s)
-        if trips.load[tr] >= setup.departure_load:
-            _close(tr, trips.board_free[tr], w, out, arrivals, timing, setup)
-    elif trips.load[tr] >= setup.departure_load:
-        bf = out.trip_open_s[tr]
-        j = trips.head[tr]
+        row["head"] = i
+    row["tail"] = i
+    row["load"] += 1
+    row["mask"] |= np.uint64(1) << np.uint64(arrivals.destination[i])
+    if row["state"] == OPEN:
+        _board(i, tr, pax, trips, cars, counters, setup, timing.transfer_in_s)
+        if row["load"] >= setup.departure_load:
+            _close(tr, row["board_free_s"], pax, trips, cars, counters, arrivals, timing,
+                   setup, buf)
+    elif row["load"] >= setup.departure_load:
+        bf = row["open_s"]
+        j = row["head"]
         while j >= 0:
-            bf = max(max(out.alloc_s[j], out.trip_open_s[tr]), bf) + timing.transfer_in_s
-            j = w.pax_next[j]
-        _fly(tr, (bf + setup.door_close_s) + setup.start_delay_s, w, out, arrivals, timing)
+            bf = max(max(pax[j]["alloc_s"], row["open_s"]), bf) + timing.transfer_in_s
+            j = pax[j]["next"]
+        _fly(tr, (bf + setup.door_close_s) + setup.start_delay_s, pax, trips, arrivals,
+             timing, buf)
 
 
-@njit(cache=True, inline="always")
-def _open(c, t, w, out, arrivals, timing, setup):
+@njit(cache=True, **WITHOUT_RUNTIME)
+def _open(c, t, pax, trips, cars, counters, arrivals, timing, setup, buf):
     """Car ``c``'s doors open at the lobby at ``t`` for its next trip: its committed
     passengers board, one after another; a full trip closes at the end."""
-    w.cal.open_t[c] = np.inf
-    tr = w.car_head[c]
-    w.trips.state[tr] = OPEN
-    w.trips.board_free[tr] = t
-    i = w.trips.head[tr]
+    cars[c]["open_t"] = np.inf
+    tr = cars[c]["head"]
+    row = trips[tr]
+    row["state"] = OPEN
+    row["board_free_s"] = t
+    i = row["head"]
     while i >= 0:
-        _board(i, tr, w, out, setup, timing.transfer_in_s)
-        i = w.pax_next[i]
-    if w.trips.load[tr] >= setup.departure_load:
-        _close(tr, w.trips.board_free[tr], w, out, arrivals, timing, setup)
+        _board(i, tr, pax, trips, cars, counters, setup, timing.transfer_in_s)
+        i = pax[i]["next"]
+    if row["load"] >= setup.departure_load:
+        _close(tr, row["board_free_s"], pax, trips, cars, counters, arrivals, timing, setup, buf)
 
 
 @njit(cache=True, inline="always")
-def _view(v, tr, t, w, out, setup):
-    """The car view (allocation.contract.CAR_VIEW) of trip ``tr`` at ``t``."""
-    trips = w.trips
-    v["room"] = setup.departure_load - trips.load[tr]
-    v["load"] = trips.load[tr]
-    v["up_stops"] = trips.mask[tr]
+def _view(v, row, t, setup):
+    """The car view (allocation.contract.CAR_VIEW) of the trip ``row`` at ``t``."""
+    v["room"] = setup.departure_load - row["load"]
+    v["load"] = row["load"]
+    v["up_stops"] = row["mask"]
     v["down_stops"] = np.uint64(0)
-    v["opens_in_s"] = out.trip_open_s[tr] - t
-    first = out.trip_first_board_s[tr]
-    if trips.state[tr] == OPEN:
+    v["opens_in_s"] = row["open_s"] - t
+    first = row["first_board_s"]
+    if row["state"] == OPEN:
         v["leaves_in_s"] = (first + setup.lobby_dwell_s - t) if first < np.inf else setup.lobby_dwell_s
     else:
-        v["leaves_in_s"] = (out.trip_open_s[tr] - t) + setup.lobby_dwell_s
+        v["leaves_in_s"] = (row["open_s"] - t) + setup.lobby_dwell_s
 
 
 class _Lobby(NamedTuple):
-    """Working arrays of destination control (made by :func:`_run`)."""
+    """Working arrays of destination control (made by :func:`run`)."""
 
     views: np.ndarray          # CAR_VIEW, one per car
-    cand: np.ndarray           # int64: the trips open to one allocation
-    room_left: np.ndarray      # int64
+    ints: np.ndarray           # int64 [2, cars]: the trips open to one allocation, their room
     pend: np.ndarray           # int64: registrations waiting for a car
-    b_orig: np.ndarray         # int64: a batch for the rule
-    b_dest: np.ndarray
-    b_car: np.ndarray
+    batch: np.ndarray          # int64 [3, n]: a batch's origins (0), destinations, cars
     b_off: np.ndarray          # int64 [0, n]
-    c_start: np.ndarray        # int64 [0]
-    c_stop: np.ndarray         # int64 [k]
+    c_range: np.ndarray        # int64 [0, k]
     rule_scratch: np.ndarray   # int64
+    window: np.ndarray         # float64 [time the window closes]
 
 
 @njit(cache=True)
-def _run(arrivals, timing, setup, rule, rule_table, policy, policy_table, out):
+def run(arrivals, timing, setup, rule, rule_table, policy, policy_table, out):
     """One run: makes the working arrays, then runs :func:`_loop` over them."""
     N = arrivals.time_s.shape[0]
     L = setup.n_cars
     D = setup.departure_load
-    M = out.trip_car.shape[0]
     n_levels = timing.flight_s.shape[0]
-    trips = _Trips(np.zeros(M, np.int64), np.zeros(M, np.int64), np.zeros(M, np.uint64),
-                   np.full(M, -1, np.int64), np.full(M, -1, np.int64), np.zeros(M),
-                   np.full(M, -1, np.int64), np.full(M, np.inf))
-    cal = _Calendar(np.full(L, np.inf), np.zeros(L, np.int64), np.full(L, np.inf),
-                    np.zeros(L, np.int64), np.full(L, -1, np.int64), np.array([np.inf, 0.0]),
-                    np.zeros(1, np.int64))
-    w = _Work(trips, cal, np.full(max(N, 1), -1, np.int64), np.empty(L, np.int64),
-              np.empty(L, np.int64), np.zeros(max(D, 1), np.int64), np.zeros(max(D, 1), np.int64),
-              new_scratch(D, n_levels), new_schedule(D, n_levels))
+    cars = np.zeros(L, dtype=CAR)
+    for c in range(L):
+        cars[c]["open_t"] = np.inf
+        cars[c]["timer_t"] = np.inf
+        cars[c]["timer_trip"] = -1
+    buf = _Buffers(np.zeros(max(D, 1), np.int64), np.zeros(max(D, 1), np.int64),
+                   new_scratch(D, n_levels), new_schedule(D, n_levels))
     n1 = max(N, 1)
-    lobby = _Lobby(np.zeros(L, dtype=CAR_VIEW), np.empty(L, np.int64), np.empty(L, np.int64),
-                   np.empty(n1, np.int64), np.zeros(n1, np.int64), np.empty(n1, np.int64),
-                   np.empty(n1, np.int64), np.zeros(2, np.int64), np.zeros(1, np.int64),
-                   np.zeros(1, np.int64), np.empty(4 * n1 + 5 * L + RULE_SCRATCH_FIXED, np.int64))
-    _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, out, w, lobby)
+    lobby = _Lobby(np.zeros(L, dtype=CAR_VIEW), np.zeros((2, L), np.int64),
+                   np.empty(n1, np.int64), np.zeros((3, n1), np.int64), np.zeros(2, np.int64),
+                   np.zeros(2, np.int64), np.empty(4 * n1 + 5 * L + RULE_SCRATCH_FIXED, np.int64),
+                   np.full(1, np.inf))
+    _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, out.passengers,
+          out.trips, cars, out.counters, buf, lobby)
 
 
 @njit(cache=True, **WITHOUT_RUNTIME)
-def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, out, w, lobby):
+def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, pax, trips, cars,
+          counters, buf, lobby):
     """The event loop (allocates nothing; compiled without the reference-counting runtime,
     see :mod:`roundtrip.compile_options`)."""
     N = arrivals.time_s.shape[0]
     L = setup.n_cars
     D = setup.departure_load
     W = setup.window_s
-    trips = w.trips
-    cal = w.cal
-    out.counters[:] = 0
+    counters[:] = 0
     for c in range(L):                        # every car parked at the lobby, doors open
-        tr = _new_trip(w, out, c, 0.0, OPEN)
-        w.car_head[c] = tr
-        w.car_tail[c] = tr
-    # destination control: the view of the cars, the registrations waiting for a car
+        tr = _new_trip(trips, counters, c, 0.0, OPEN)
+        cars[c]["head"] = tr
+        cars[c]["tail"] = tr
     views = lobby.views
-    cand = lobby.cand
-    room_left = lobby.room_left
+    cand = lobby.ints[0]
+    room_left = lobby.ints[1]
     pend = lobby.pend
     n_pend = 0
-    b_orig = lobby.b_orig
-    b_dest = lobby.b_dest
-    b_car = lobby.b_car
-    b_off = lobby.b_off
-    c_start = lobby.c_start
-    c_stop = lobby.c_stop
-    rule_scratch = lobby.rule_scratch
+    b_orig = lobby.batch[0]
+    b_dest = lobby.batch[1]
+    b_car = lobby.batch[2]
+    window = lobby.window
     idle_rounds = 0
     q_head = 0                                # conventional: the lobby queue is the
     q_tail = 0                                # arrivals q_head ... q_tail - 1
@@ -393,13 +381,13 @@ def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, out, 
         kind = -1
         ev_car = -1
         for c in range(L):
-            if cal.open_t[c] < ev_t or (cal.open_t[c] == ev_t and cal.open_seq[c] < ev_seq):
-                ev_t, ev_seq, kind, ev_car = cal.open_t[c], cal.open_seq[c], 0, c
-            if cal.timer_t[c] < ev_t or (cal.timer_t[c] == ev_t and cal.timer_seq[c] < ev_seq):
-                ev_t, ev_seq, kind, ev_car = cal.timer_t[c], cal.timer_seq[c], 1, c
-        win_seq = int(cal.window[1])
-        if cal.window[0] < ev_t or (cal.window[0] == ev_t and win_seq < ev_seq):
-            ev_t, ev_seq, kind = cal.window[0], win_seq, 2
+            row = cars[c]
+            if row["open_t"] < ev_t or (row["open_t"] == ev_t and row["open_seq"] < ev_seq):
+                ev_t, ev_seq, kind, ev_car = row["open_t"], row["open_seq"], 0, c
+            if row["timer_t"] < ev_t or (row["timer_t"] == ev_t and row["timer_seq"] < ev_seq):
+                ev_t, ev_seq, kind, ev_car = row["timer_t"], row["timer_seq"], 1, c
+        if window[0] < ev_t or (window[0] == ev_t and counters[WINDOW_SEQ] < ev_seq):
+            ev_t, ev_seq, kind = window[0], counters[WINDOW_SEQ], 2
         if a < N and arrivals.time_s[a] < ev_t:
             kind = 3
         if kind < 0:
@@ -414,66 +402,67 @@ def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, out, 
             elif setup.mode == DELAYED:
                 pend[n_pend] = i
                 n_pend += 1
-                if cal.window[0] == np.inf:
-                    cal.window[0] = t + W
-                    cal.window[1] = _next_seq(cal)
+                if window[0] == np.inf:
+                    window[0] = t + W
+                    counters[WINDOW_SEQ] = _next_seq(counters)
                 continue
             else:
                 # immediate: each car's first trip with room (its trip after a full one)
                 for c in range(L):
-                    tr = w.car_tail[c]
-                    if trips.load[tr] < D:
-                        _view(views[c], tr, t, w, out, setup)
+                    row = trips[cars[c]["tail"]]
+                    if row["load"] < D:
+                        _view(views[c], row, t, setup)
                     else:
                         v = views[c]
                         v["room"] = D
                         v["load"] = 0
                         v["up_stops"] = np.uint64(0)
                         v["down_stops"] = np.uint64(0)
-                        v["opens_in_s"] = trips.next_open[tr] - t
-                        v["leaves_in_s"] = (trips.next_open[tr] - t) + setup.lobby_dwell_s
+                        v["opens_in_s"] = row["next_open_s"] - t
+                        v["leaves_in_s"] = (row["next_open_s"] - t) + setup.lobby_dwell_s
                 c = policy(0, arrivals.destination[i], views, timing, policy_table)
                 if c < 0 or c >= L:
-                    out.counters[ERROR] = ERROR_POLICY_NO_CAR
+                    counters[ERROR] = ERROR_POLICY_NO_CAR
                     break
-                tr = w.car_tail[c]
-                if trips.load[tr] >= D:
-                    tr = _successor(tr, w, out)
-                _commit(i, tr, t, w, out, arrivals, timing, setup)
+                tr = cars[c]["tail"]
+                if trips[tr]["load"] >= D:
+                    tr = _successor(tr, trips, cars, counters)
+                _commit(i, tr, t, pax, trips, cars, counters, arrivals, timing, setup, buf)
                 continue
         elif kind == 0:
             # ------------------------------------------------ a car's doors open at the lobby
             t = ev_t
-            _open(ev_car, t, w, out, arrivals, timing, setup)
+            _open(ev_car, t, pax, trips, cars, counters, arrivals, timing, setup, buf)
         elif kind == 1:
             # ------------------------------------------------ a lobby dwell runs out
             t = ev_t
-            tr = cal.timer_trip[ev_car]
-            cal.timer_t[ev_car] = np.inf
-            cal.timer_trip[ev_car] = -1
-            if trips.state[tr] == OPEN:
-                _close(tr, max(t, trips.board_free[tr]), w, out, arrivals, timing, setup)
+            tr = cars[ev_car]["timer_trip"]
+            cars[ev_car]["timer_t"] = np.inf
+            cars[ev_car]["timer_trip"] = -1
+            if trips[tr]["state"] == OPEN:
+                _close(tr, max(t, trips[tr]["board_free_s"]), pax, trips, cars, counters,
+                       arrivals, timing, setup, buf)
             continue
         else:
             # ------------------------------------------------ an allocation window closes
             t = ev_t
-            cal.window[0] = np.inf
-            out.counters[N_ROUNDS] += 1
+            window[0] = np.inf
+            counters[N_ROUNDS] += 1
             k = 0
             for c in range(L):                # the cars open to allocation, by opening
-                tr = w.car_head[c]
-                if trips.load[tr] < D and (trips.state[tr] == OPEN
-                                           or out.trip_open_s[tr] <= t + W):
+                tr = cars[c]["head"]
+                if trips[tr]["load"] < D and (trips[tr]["state"] == OPEN
+                                              or trips[tr]["open_s"] <= t + W):
                     pos = k
-                    while pos > 0 and out.trip_open_s[cand[pos - 1]] > out.trip_open_s[tr]:
+                    while pos > 0 and trips[cand[pos - 1]]["open_s"] > trips[tr]["open_s"]:
                         cand[pos] = cand[pos - 1]
                         pos -= 1
                     cand[pos] = tr
                     k += 1
             total_room = 0
             for j in range(k):
-                _view(views[j], cand[j], t, w, out, setup)
-                room_left[j] = D - trips.load[cand[j]]
+                _view(views[j], trips[cand[j]], t, setup)
+                room_left[j] = D - trips[cand[j]]["load"]
                 total_room += room_left[j]
             n = min(n_pend, total_room)
             placed = 0
@@ -481,15 +470,17 @@ def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, out, 
                 for j in range(n):
                     b_dest[j] = arrivals.destination[pend[j]]
                     b_car[j] = -1
-                b_off[1] = n
-                c_stop[0] = k
-                rule(RuleBatches(b_orig[:n], b_dest[:n], b_off, views[:k], c_start, c_stop),
-                     timing, rule_table, rule_scratch, b_car[:n])
+                lobby.b_off[1] = n
+                lobby.c_range[1] = k
+                rule(RuleBatches(b_orig[:n], b_dest[:n], lobby.b_off, views[:k],
+                                 lobby.c_range[:1], lobby.c_range[1:]),
+                     timing, rule_table, lobby.rule_scratch, b_car[:n])
                 for j in range(n):
                     cj = b_car[j]
                     if 0 <= cj < k and room_left[cj] > 0:
                         room_left[cj] -= 1
-                        _commit(pend[j], cand[cj], t, w, out, arrivals, timing, setup)
+                        _commit(pend[j], cand[cj], t, pax, trips, cars, counters, arrivals,
+                                timing, setup, buf)
                         pend[j] = -1
                         placed += 1
                 m = 0                         # the rest wait, in order of registration
@@ -500,41 +491,38 @@ def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, out, 
                 n_pend = m
             idle_rounds = idle_rounds + 1 if (placed == 0 and total_room > 0) else 0
             if idle_rounds > _MAX_IDLE_ROUNDS:
-                out.counters[ERROR] = ERROR_RULE_PLACED_NOBODY
+                counters[ERROR] = ERROR_RULE_PLACED_NOBODY
                 break
             if n_pend > 0:
-                cal.window[0] = t + W
-                cal.window[1] = _next_seq(cal)
+                window[0] = t + W
+                counters[WINDOW_SEQ] = _next_seq(counters)
             continue
         # ------------------------------------------------ conventional: fill the open cars
         if setup.mode == CONVENTIONAL:
             while q_head < q_tail:
                 best = -1
                 for c in range(L):            # the open car that opened first
-                    tr = w.car_head[c]
-                    if trips.state[tr] == OPEN and (
-                            best < 0 or out.trip_open_s[tr] < out.trip_open_s[best]):
+                    tr = cars[c]["head"]
+                    if trips[tr]["state"] == OPEN and (
+                            best < 0 or trips[tr]["open_s"] < trips[best]["open_s"]):
                         best = tr
                 if best < 0:
                     break
-                _commit(q_head, best, t, w, out, arrivals, timing, setup)
+                _commit(q_head, best, t, pax, trips, cars, counters, arrivals, timing, setup,
+                        buf)
                 q_head += 1
 
 
-@njit(cache=True, parallel=True)
-def run_replications(times, destinations, offsets, timing, setup, rule, rule_table, policy,
-                     policy_table, out_offsets, trip_offsets, out):
-    """Replication r's passengers are times/destinations[offsets[r]:offsets[r+1]]; its rows
-    go to out[...][out_offsets[r]:...] and its trips to [trip_offsets[r]:...]. Each
-    replication depends on its own arrivals only: the same numbers on any thread count."""
-    R = offsets.shape[0] - 1
-    for r in prange(R):
+@njit(cache=True, nogil=True)
+def run_range(times, destinations, offsets, timing, setup, rule, rule_table, policy,
+              policy_table, trip_offsets, passengers, trip_rows, counters, first, last):
+    """Replications ``first`` ... ``last - 1``: replication r's passengers are
+    times/destinations[offsets[r]:offsets[r+1]], its rows passengers[offsets[r]:...] and
+    trip_rows[trip_offsets[r]:...], its counters counters[r]. Each replication depends on
+    its own arrivals only, so a pool of threads may run ranges side by side (the GIL is
+    released) and the numbers are the same on any thread count."""
+    for r in range(first, last):
         s, e = offsets[r], offsets[r + 1]
         ts, te = trip_offsets[r], trip_offsets[r + 1]
-        sub = PeakOut(out.car[s:e], out.trip[s:e], out.alloc_s[s:e], out.ready_s[s:e],
-                      out.board_s[s:e], out.alight_s[s:e], out.trip_car[ts:te],
-                      out.trip_load[ts:te], out.trip_stops[ts:te], out.trip_open_s[ts:te],
-                      out.trip_first_board_s[ts:te], out.trip_depart_s[ts:te],
-                      out.trip_return_s[ts:te], out.counters[r])
-        _run(Arrivals(times[s:e], destinations[s:e]), timing, setup, rule, rule_table, policy,
-             policy_table, sub)
+        run(Arrivals(times[s:e], destinations[s:e]), timing, setup, rule, rule_table, policy,
+            policy_table, PeakOut(passengers[s:e], trip_rows[ts:te], counters[r]))

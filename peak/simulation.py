@@ -185,51 +185,59 @@ def peak_setup(group: LiftGroup, control: Control, window_s: float) -> P.PeakSet
                        float(group.start_delay_s), int(control.mode), float(window_s))
 
 
+def _threads(threads: int | None) -> int:
+    if threads is not None:
+        return int(threads)
+    import numba
+    return numba.get_num_threads()
+
+
 def run_rows(building: Building, group: LiftGroup, control: Control, streams, *,
              window_s: float = DEFAULT_WINDOW_S, threads: int | None = None):
     """The rows of ``control`` on each replication's arrivals ``streams`` (a list of
-    (times, destinations)): a list of (rows, trips) dicts, one per replication. The one
-    helper through which every caller runs the event loop."""
-    from roundtrip.montecarlo import with_threads
+    (times, destinations)): a list of (rows, trips) record arrays (:data:`peak._kernel.
+    PASSENGER`, :data:`peak._kernel.TRIP`), one pair per replication. The one helper
+    through which every caller runs the event loop: replications are shared out in
+    contiguous ranges to a pool of threads (the compiled loop releases the GIL); each
+    depends on its own arrivals only, so the rows are the same on any thread count."""
     timing = trip_timing(building, group)
     setup = peak_setup(group, control, window_s)
     rule, rule_table, policy, policy_table = _tables(control, building, group, group.cars)
+    R = len(streams)
     sizes = [t.size for t, _ in streams]
-    offsets = np.zeros(len(streams) + 1, np.int64)
+    offsets = np.zeros(R + 1, np.int64)
     np.cumsum(sizes, out=offsets[1:])
-    trip_offsets = np.zeros(len(streams) + 1, np.int64)
+    trip_offsets = np.zeros(R + 1, np.int64)
     np.cumsum([n + group.cars + 1 for n in sizes], out=trip_offsets[1:])
-    times = np.concatenate([t for t, _ in streams]) if streams else np.empty(0)
-    dests = np.concatenate([d for _, d in streams]).astype(np.int64) if streams else np.empty(0, np.int64)
-    n, m = int(offsets[-1]), int(trip_offsets[-1])
-    out = P.PeakOut(np.full(n, -1, np.int64), np.full(n, -1, np.int64), np.full(n, np.nan),
-                    np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan),
-                    np.full(m, -1, np.int64), np.zeros(m, np.int64), np.zeros(m, np.int64),
-                    np.full(m, np.nan), np.full(m, np.inf), np.full(m, np.nan), np.full(m, np.nan),
-                    np.zeros((len(streams), P.N_COUNTERS), np.int64))
-    with_threads(threads, lambda: P.run_replications(
-        np.ascontiguousarray(times), np.ascontiguousarray(dests), offsets, timing, setup, rule,
-        rule_table, policy, policy_table, offsets, trip_offsets, out))
-    errors = out.counters[:, P.ERROR]
+    times = np.ascontiguousarray(np.concatenate([t for t, _ in streams])) if R else np.empty(0)
+    dests = (np.ascontiguousarray(np.concatenate([d for _, d in streams]), dtype=np.int64)
+             if R else np.empty(0, np.int64))
+    passengers = P.empty_passengers(int(offsets[-1]))
+    trip_rows = P.empty_trips(int(trip_offsets[-1]))
+    counters = np.zeros((max(R, 1), P.N_COUNTERS), np.int64)
+    args = (times, dests, offsets, timing, setup, rule, rule_table, policy, policy_table,
+            trip_offsets, passengers, trip_rows, counters)
+    n_threads = max(1, min(_threads(threads), R))
+    if n_threads == 1:
+        P.run_range(*args, 0, R)
+    else:
+        from concurrent.futures import ThreadPoolExecutor
+        cuts = [R * k // n_threads for k in range(n_threads + 1)]
+        with ThreadPoolExecutor(n_threads) as pool:
+            for f in [pool.submit(P.run_range, *args, cuts[k], cuts[k + 1])
+                      for k in range(n_threads)]:
+                f.result()
+    errors = counters[:R, P.ERROR]
     if np.any(errors != P.NO_ERROR):
         why = {P.ERROR_RULE_PLACED_NOBODY: "the rule placed nobody although cars had room",
                P.ERROR_POLICY_NO_CAR: "the policy returned no car with room"}
         raise RuntimeError(f"control {control.name!r}: {why[int(errors[errors != 0][0])]} "
                            f"(a rule must place every passenger of a batch that fits)")
     result = []
-    for r in range(len(streams)):
+    for r in range(R):
         s, e = offsets[r], offsets[r + 1]
         ts = trip_offsets[r]
-        te = ts + out.counters[r, P.N_TRIPS]
-        rows = {"car": out.car[s:e], "trip": out.trip[s:e], "alloc_s": out.alloc_s[s:e],
-                "ready_s": out.ready_s[s:e], "board_s": out.board_s[s:e],
-                "alight_s": out.alight_s[s:e]}
-        trips = {"car": out.trip_car[ts:te], "load": out.trip_load[ts:te],
-                 "stops": out.trip_stops[ts:te], "open_s": out.trip_open_s[ts:te],
-                 "first_board_s": out.trip_first_board_s[ts:te],
-                 "depart_s": out.trip_depart_s[ts:te], "return_s": out.trip_return_s[ts:te],
-                 "rounds": int(out.counters[r, P.N_ROUNDS])}
-        result.append((rows, trips))
+        result.append((passengers[s:e], trip_rows[ts:ts + counters[r, P.N_TRIPS]]))
     return result
 
 

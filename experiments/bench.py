@@ -128,7 +128,7 @@ def rule_figures(building, group, P, n_batches, bound):
     return out
 
 
-def peak_figures(replications: int = 40) -> dict:
+def peak_figures(replications: int = 200) -> dict:
     """Simulated passengers per second of the peak simulation on one thread (see (vii)):
     the event loop alone on arrivals drawn beforehand, and whole replications (drawing the
     arrivals, the loop, the per-replication figures and the slot table)."""

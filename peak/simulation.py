@@ -32,6 +32,7 @@ MAX_REPLICATIONS = 200
 CI_TARGET_PCT = 5.0
 CI_FLOOR_S = 0.25
 MAX_PASSENGERS = 20_000_000
+THREAD_PASSENGERS = 100_000
 
 
 @dataclass(frozen=True)
@@ -217,7 +218,9 @@ def run_rows(building: Building, group: LiftGroup, control: Control, streams, *,
     counters = np.zeros((max(R, 1), P.N_COUNTERS), np.int64)
     args = (times, dests, offsets, timing, setup, rule, rule_table, policy, policy_table,
             trip_offsets, passengers, trip_rows, counters)
-    n_threads = max(1, min(_threads(threads), R))
+    # a thread takes at least THREAD_PASSENGERS passengers (about 10 ms of work), so that
+    # starting the pool never costs more than it gains
+    n_threads = max(1, min(_threads(threads), R, int(offsets[-1]) // THREAD_PASSENGERS))
     if n_threads == 1:
         P.run_range(*args, 0, R)
     else:

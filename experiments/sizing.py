@@ -132,3 +132,117 @@ def savings(designs: list[dict]) -> list[dict]:
         out.append({"rule": d["rule"], "saving": text,
                     "cars_saved": (base["cars"] - d["cars"]) if d["found"] and base["found"] else None})
     return out
+
+
+# ------------------------------------------------------------------ sizing by service
+#: Door width [mm] for a car's rated load [persons], ISO 4190-1:2010 office cars (from
+#: memory): (most persons, width).
+DOOR_WIDTHS_MM = ((10, 800), (13, 900), (21, 1100), (10_000, 1300))
+
+
+def door_width_mm(rated_load_persons: int) -> int:
+    """The standard door width of a car of ``rated_load_persons`` (see DOOR_WIDTHS_MM)."""
+    return next(w for most, w in DOOR_WIDTHS_MM if rated_load_persons <= most)
+
+
+def candidate_group(group, cars: int, rated_load: int, speed: float, scale_doors: bool):
+    """The file's group with ``cars`` cars of ``rated_load`` persons at ``speed``; with
+    ``scale_doors`` the door opening and closing times scale with the standard door width
+    of the car size (doors of one design open at one speed), transfer times stay."""
+    g = replace(group, cars=cars, rated_load_persons=rated_load, rated_speed_mps=speed)
+    if scale_doors:
+        f = door_width_mm(rated_load) / door_width_mm(group.rated_load_persons)
+        g = replace(g, door_open_s=group.door_open_s * f, door_close_s=group.door_close_s * f)
+    return g
+
+
+def installation_order(cars_list, loads, speeds, cost_weight: float | None = None):
+    """(cars, rated load, rated speed) in the order a client pays for them: fewest cars,
+    then the smaller installation, rated load x rated speed [persons m/s] (or, with a
+    ``cost_weight`` w, rated load + w x rated speed), then the smaller car."""
+    def size(q, v):
+        return q * v if cost_weight is None else q + cost_weight * v
+    return sorted(((c, q, v) for c in cars_list for q in loads for v in speeds),
+                  key=lambda x: (x[0], size(x[1], x[2]), x[1], x[2]))
+
+
+def size_by_service(scenario: Scenario, destination_control: str, criterion, cars_list, loads,
+                    speeds, *, seed: int = 0, replications: int = 10, window_s: float = 5.0,
+                    minutes: float = 60.0, scale_doors: bool = False,
+                    cost_weight: float | None = None, on_candidate=None) -> dict:
+    """The cheapest group meeting the service criterion under each control, by the peak
+    simulation (:mod:`experiments.decision`).
+
+    Candidates go in :func:`installation_order`. For each, the peak simulation runs
+    conventional control and ``destination_control`` on the same arrivals at the file's
+    demand; a control's design is the first candidate at which it meets the criterion with
+    the upper end of every 95 % interval (:func:`experiments.decision.meets`). A first
+    filter spares the simulation of groups that cannot carry the demand at all: the
+    round-trip Monte Carlo's handling capacity of conventional control at the departure
+    load (its most, lobby never empty) below the demand fails conventional control there.
+
+    Returns ``{"designs": [...], "tried": [...], "savings": [...], "criterion": ...}``;
+    a control without a design says so (``found: false`` and a message).
+    """
+    from peak.simulation import simulate_peak
+    from roundtrip.montecarlo import simulate_trips
+
+    from .decision import meets
+    names = ["conventional", destination_control]
+    demand = scenario.traffic.arrival_rate_pct_5min
+    found: dict = {}
+    tried = []
+    for cars, load, speed in installation_order(cars_list, loads, speeds, cost_weight):
+        if all(n in found for n in names):
+            break
+        group = candidate_group(scenario.group, cars, load, speed, scale_doors)
+        open_names = [n for n in names if n not in found]
+        base = {"cars": cars, "rated_load_persons": load, "rated_speed_mps": speed,
+                "door_open_s": group.door_open_s, "door_close_s": group.door_close_s}
+        mc = simulate_trips(scenario.building, group, group.departure_load_persons,
+                            traffic=scenario.traffic, poisson=False, trials=4000, seed=seed)
+        most = (100 * 300 * mc.passengers_carried.mean * cars / mc.round_trip_time.mean
+                / scenario.building.total_population)
+        if most < demand and "conventional" in open_names:
+            tried.append({**base, "control": "conventional", "meets_criterion": False,
+                          "why": [f"round trip carries at most {most:.1f} %"], "basis": "round-trip"})
+            open_names = [n for n in open_names if n != "conventional"]
+            if not open_names:
+                if on_candidate is not None:
+                    on_candidate()
+                continue
+        study = simulate_peak(scenario.building, group, scenario.traffic,
+                              [destination_control], window_s=window_s, minutes=minutes,
+                              replications=replications, seed=seed, slots=False)
+        for run in study.runs:
+            name = run.control.name
+            ok, why = meets(run, study.runs[0], criterion)
+            s = run.summary
+            entry = {**base, "control": name, "meets_criterion": ok, "why": why, "basis": "peak",
+                     "average_waiting_time_s": s["average_waiting_time_s"].mean,
+                     "average_waiting_time_ci95_s": s["average_waiting_time_s"].ci95,
+                     "waiting_time_p95_s": s["waiting_time_p95_s"].mean,
+                     "average_time_to_destination_s": s["average_time_to_destination_s"].mean,
+                     "handling_capacity_pct_5min": s["handling_capacity_pct_5min"].mean}
+            tried.append(entry)
+            if ok and name in open_names:
+                found[name] = {**entry, "found": True}
+        if on_candidate is not None:
+            on_candidate()
+    designs = []
+    for name in names:
+        if name in found:
+            designs.append(found[name])
+        else:
+            designs.append({"control": name, "found": False, "basis": "peak",
+                            "message": f"no candidate up to {max(cars_list)} cars x "
+                                       f"{max(loads)} persons at {max(speeds):g} m/s meets "
+                                       f"the criterion ({criterion.describe()})"})
+    conv, dc = designs
+    savings = None
+    if conv["found"] and dc["found"]:
+        savings = {"cars_saved": conv["cars"] - dc["cars"], "basis": "peak"}
+    return {"criterion": criterion.to_dict(), "demand_pct_5min": demand, "designs": designs,
+            "tried": tried, "savings": savings, "scale_doors": scale_doors,
+            "cost_order": ("cars, then rated load x speed" if cost_weight is None
+                           else f"cars, then rated load + {cost_weight:g} x speed")}

@@ -438,8 +438,8 @@ def distribution_charts(comparison, out_dir, building_name: str) -> list[Path]:
     results = list(comparison.results)
     if not results:
         raise ValueError("comparison: has no rule results; nothing to draw")
-    sub = (f"{comparison.passengers_per_car:.1f} passengers per car, {comparison.cars} cars, "
-           f"{comparison.trials} batches")
+    sub = (f"{comparison.passengers_per_car:.1f} passengers per car ({comparison.passenger_model}), "
+           f"{comparison.cars} cars, {comparison.trials} rounds")
     paths = _distribution(results, K.STOPS, "stops above the lobby per round trip [-]",
                           f"{building_name}: stops per round trip\n({sub})", out_dir,
                           "stops_distribution")
@@ -450,17 +450,20 @@ def distribution_charts(comparison, out_dir, building_name: str) -> list[Path]:
 
 
 def _distribution(results, column: int, xlabel: str, title: str, out_dir, stem) -> list[Path]:
-    values = {r.rule: np.asarray(r.sample.counts[:, :, column]).ravel() for r in results}
-    top = int(max(v.max() for v in values.values() if v.size)) if any(
-        v.size for v in values.values()) else 0
+    from roundtrip import schedule as K
+    hists = {r.rule: np.asarray(r.totals.stops_hist if column == K.STOPS
+                                else r.totals.highest_hist) for r in results}
+    used = [int(np.flatnonzero(h).max()) for h in hists.values() if h.any()]
+    top = max(used) if used else 0
     ks = np.arange(top + 1)
-    width = 0.8 / len(values)
+    width = 0.8 / len(hists)
     with _style():
         fig, axes = _figure(1, 1, max(7.0, 1.5 + 0.55 * (top + 1)), 4.6)
         ax = axes[0][0]
-        for i, (rule, v) in enumerate(values.items()):
-            prob = np.bincount(v, minlength=top + 1)[: top + 1] / max(v.size, 1)
-            mean = float(v.mean()) if v.size else float("nan")
+        for i, (rule, h) in enumerate(hists.items()):
+            total = max(int(h.sum()), 1)
+            prob = h[: top + 1] / total
+            mean = float(np.sum(np.arange(h.size) * h) / total) if h.any() else float("nan")
             ax.bar(ks - 0.4 + width * (i + 0.5), prob, width=width, color=rule_colour(rule),
                    edgecolor="white", linewidth=0.4, label=f"{rule} (mean {mean:.2f})",
                    hatch="//" if _is_baseline(rule) else None)
@@ -504,15 +507,17 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
 
     Notes
     -----
-    The batch is drawn once by :class:`roundtrip.montecarlo.PassengerSampler`
-    and given to every rule's plain function with the engine's per-car limit
-    (:func:`allocation.registry.car_limit`). Each car's passengers are timed
+    The round is drawn once by :class:`roundtrip.montecarlo.PassengerSampler`
+    (each car's passengers over its interval) and given to every rule's plain
+    function with each car's room, the passengers conventional control gives it
+    (as in the round-trip Monte Carlo). Each car's passengers are timed
     by :func:`roundtrip.montecarlo.time_trips` (the trip model of
     ``docs/trip_model.md``); its round-trip time [s] and stops are in the
     car's axis label. A dot is a passenger at their destination floor (dots
     at one floor are spread side by side); a grey bar marks a stop.
     """
-    from allocation.registry import car_limit, get_rule
+    from allocation.contract import empty_cars
+    from allocation.registry import get_rule
     from roundtrip.montecarlo import PassengerSampler, time_trips
     from roundtrip.schedule import STOPS, trip_timing
 
@@ -525,19 +530,23 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
     chosen = [get_rule(r) for r in rules]
     if not chosen:
         raise ValueError("rules = (): give at least one rule")
-    orig, dest, offsets = PassengerSampler(building).draw(np.random.default_rng(seed), cars * p, 1,
+    # one round: each car's passengers arrive over its interval (a fixed count, a real P
+    # mixing the two nearest integers), and each car takes as many as conventional
+    # control would give it, as in the round-trip Monte Carlo
+    orig, dest, offsets = PassengerSampler(building).draw(np.random.default_rng(seed), p, cars,
                                                           poisson=False)
-    n = int(offsets[1])
+    n = int(offsets[-1])
     for rule in chosen:
         if rule.max_batch is not None and n > rule.max_batch:
             raise ValueError(f"rule = {rule.name!r}: takes batches of at most {rule.max_batch} "
                              f"passengers; this batch has {n}")
-    limit = car_limit(n, cars, group.rated_load_persons)
+    view = empty_cars(cars, 0)
+    view["room"] = np.minimum(np.diff(offsets), group.rated_load_persons)
     timing = trip_timing(building, group)
     drawn = []
     for rule in chosen:
         params = rule.params(building, group, cars, p)
-        car_of = rule.allocate(orig, dest, cars, limit, params)
+        car_of = rule.allocate(orig, dest, cars, params=params, cars=view)
         per_car = []
         for c in range(cars):
             idx = np.flatnonzero(car_of == c)

@@ -14,6 +14,15 @@ The first candidate meeting both is that rule's design. Defaults are the
 common office up-peak criteria: interval at most 30 s and a five-minute
 handling capacity of at least 12 % (CIBSE Guide D, 2015, office up-peak
 planning criteria, from memory), or the file's own demand when it gives one.
+
+Cars open to allocation. A destination rule shares each allocation between the
+cars open to it; with every car open its figure is the ideal bound, which no
+real destination control reaches. The default, :data:`DEFAULT_CARS_OPEN` = 2,
+is the realisable value argued in ``docs/rules.md``: in up-peak an allocation
+made as passengers register can go only to the car loading at the lobby and
+the next one to arrive there (with intervals of 20-40 s and a loading time of
+10-20 s, common practice, no third car is within reach). Conventional control
+does not depend on it.
 """
 from __future__ import annotations
 
@@ -23,6 +32,8 @@ from roundtrip.building import Scenario
 
 DEFAULT_INTERVAL_MAX_S = 30.0
 DEFAULT_HC_MIN_PCT = 12.0
+#: Cars open to one allocation by default: the car loading and the next (see the notes).
+DEFAULT_CARS_OPEN = 2
 
 
 @dataclass(frozen=True)
@@ -44,15 +55,23 @@ def candidates(cars_list, loads, speeds):
 
 
 def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, speeds, *,
-               poisson: bool = True, trials=None, ci_target_pct: float = 0.5, seed: int = 0,
-               threads=None, on_candidate=None) -> dict:
-    """Search the candidates; returns {"designs": [...], "tried": [...], "savings": [...]}.
+               cars_open: int | None = None, poisson: bool = True, trials=None,
+               ci_target_pct: float = 0.5, seed: int = 0, threads=None,
+               on_candidate=None) -> dict:
+    """Search the candidates; returns {"designs": [...], "tried": [...], "savings": [...],
+    "criteria": {...}, "cars_open": K}.
 
-    Every candidate runs all rules still without a design, on common batches; the
-    search stops as soon as every rule has one.
+    Every candidate runs all rules still without a design, on common rounds, with
+    min(K, cars) cars open to allocation (K = ``cars_open``, default
+    :data:`DEFAULT_CARS_OPEN`); the search stops as soon as every rule has one.
     """
     from allocation.registry import baseline_rule
     from batchrounds.montecarlo import compare_rules
+    from roundtrip.classical import design_passengers
+
+    K = DEFAULT_CARS_OPEN if cars_open is None else int(cars_open)
+    if K < 1:
+        raise ValueError(f"cars_open = {cars_open!r}: must be a whole number >= 1")
 
     wanted = list(dict.fromkeys([baseline_rule(), *rules]))
     found: dict[str, dict] = {}
@@ -62,13 +81,15 @@ def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, 
         if not open_rules:
             break
         group = replace(scenario.group, cars=cars, rated_load_persons=load, rated_speed_mps=speed)
-        c = compare_rules(scenario.building, group, open_rules, group.design_load_persons,
-                          traffic=scenario.traffic, poisson=poisson, trials=trials,
-                          ci_target_pct=ci_target_pct, seed=seed, threads=threads)
+        c = compare_rules(scenario.building, group, open_rules,
+                          design_passengers(scenario.building, group, scenario.traffic),
+                          cars_open=min(K, cars), traffic=scenario.traffic, poisson=poisson,
+                          trials=trials, ci_target_pct=ci_target_pct, seed=seed, threads=threads)
         for r in c.to_dict()["rules"]:
             ok = (r["interval_s"] <= criteria.interval_max_s
                   and r["handling_capacity_pct_5min"] >= criteria.hc_min_pct)
-            entry = {"rule": r["rule"], "cars": cars, "rated_load_persons": load,
+            entry = {"rule": r["rule"], "cars": cars, "cars_open": min(K, cars),
+                     "rated_load_persons": load,
                      "rated_speed_mps": speed, "interval_s": r["interval_s"],
                      "handling_capacity_pct_5min": r["handling_capacity_pct_5min"],
                      "handling_capacity_ci95_pct": r["handling_capacity_pct_5min"]
@@ -85,7 +106,8 @@ def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, 
         if rule in found:
             designs.append(found[rule])
         else:
-            designs.append({"rule": rule, "found": False, "cars": None, "rated_load_persons": None,
+            designs.append({"rule": rule, "found": False, "cars": None, "cars_open": None,
+                            "rated_load_persons": None,
                             "rated_speed_mps": None, "interval_s": None,
                             "handling_capacity_pct_5min": None, "round_trip_time_s": None,
                             "message": f"no candidate up to {max(cars_list)} cars x "
@@ -94,6 +116,7 @@ def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, 
                                        f"capacity >= {criteria.hc_min_pct:g} %"})
     return {"criteria": {"interval_max_s": criteria.interval_max_s,
                          "hc_min_pct": criteria.hc_min_pct},
+            "cars_open": K, "passenger_model": "poisson" if poisson else "fixed",
             "designs": designs, "tried": tried, "savings": savings(designs)}
 
 

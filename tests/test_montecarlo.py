@@ -22,11 +22,12 @@ from roundtrip.building import Building, LiftGroup, Traffic
 from roundtrip.classical import (expected_stops_poisson, highest_reversal_floor_poisson,
                                  uppeak_calculation)
 from roundtrip.kinematics import flight_time_s, regime_boundaries_m
-from roundtrip.montecarlo import PassengerSampler, simulate_demand, simulate_trips, time_trips
+from roundtrip.montecarlo import (PassengerSampler, chain_sums, simulate_demand,
+                                  simulate_trips, time_trips)
 from roundtrip.passengers import alias_table, od_matrix, passenger_counts
-from roundtrip.schedule import trip_timing
+from roundtrip.schedule import TripOut, trip_timing
 
-from .reference_trip import reference_trip
+from .reference_trip import reference_chain, reference_trip
 
 K_SIGMA = 4.0
 
@@ -87,25 +88,43 @@ def test_kernel_equals_plain_reference_exactly(bg, mix, seed, mean):
                                           offsets[t + 1] - offsets[t]]
 
 
-@pytest.mark.parametrize("mix", [(0.5, 0.3, 0.2), (1.0, 0.0, 0.0)], ids=["mixed", "up-peak"])
-def test_fused_sampling_kernel_equals_sampling_then_timing(mix):
-    """simulate_trips samples inside the kernel (up-peak: straight into the stop mask);
-    it must give the numbers of the two-step path (sample the batch, then time it)
-    on the same random stream."""
-    b = Building("H", (3.5, 4.0, 3.5, 5.0, 3.0), (10.0, 50.0, 0.0, 40.0, 25.0), 7.0)
-    t = Traffic(10.0, *mix)
-    g = replace(SLOW_GROUP, rated_load_persons=6)
-    sampler = PassengerSampler(b, t)
-    timing = trip_timing(b, g)
-    stream = sampler.uniforms(np.random.default_rng(12), 7.5, 5_000, True)
+@settings(max_examples=40)
+@given(bg=building_and_group(), mix=st.sampled_from([(1, 0, 0), (0, 1, 0), (0.4, 0.3, 0.3),
+                                                      (0, 0, 1), (0.45, 0.45, 0.1)]),
+       seed=st.integers(0, 2**32 - 1), mean=st.floats(0, 10), chain=st.integers(1, 9))
+def test_chain_kernel_equals_the_plain_chain_exactly(bg, mix, seed, mean, chain):
+    """The one-car Monte Carlo kernel (chains of trips, whoever is left behind waiting
+    for the next trip) gives, trip by trip, the numbers of its plain twin
+    (tests/reference_trip.py::reference_chain) to the bit, and its running sums are the
+    sums of those trips; every passenger who arrived was carried or is still waiting."""
+    building, group = bg
+    if mix[2] > 0 and sum(p > 0 for p in building.populations) < 2:
+        mix = (1, 0, 0)
+    sampler = PassengerSampler(building, Traffic(10.0, *mix))
+    timing = trip_timing(building, group)
+    stream = sampler.uniforms(np.random.default_rng(seed), mean, 23, True)
+    orig, dest = sampler.cells(stream.uniforms)
+    sample = TripOut.empty(23)
+    sums = chain_sums(sampler, timing, stream, chain, sample)
+    flight = flight_table_s(building, group).tolist()
     offsets = stream.offsets
-    assert sampler.lobby_origins_only == (mix[0] == 1.0)
-    fused = sampler.sampled_trips(timing, stream)
-    orig, dest, offsets2 = sampler.draw(np.random.default_rng(12), 7.5, 5_000, True)
-    two_step = time_trips(b, g, orig, dest, offsets2, timing)
-    assert np.array_equal(offsets, offsets2)
-    assert np.array_equal(fused.rtt_s, two_step.rtt_s)
-    assert np.array_equal(fused.counts, two_step.counts)
+    for c0 in range(0, 23, chain):
+        trips = [list(zip(orig[offsets[t]:offsets[t + 1]].tolist(),
+                          dest[offsets[t]:offsets[t + 1]].tolist()))
+                 for t in range(c0, min(23, c0 + chain))]
+        twin, waiting = reference_chain(trips, flight, group.rated_load_persons,
+                                        group.stop_overhead_s, group.transfer_in_s,
+                                        group.transfer_out_s)
+        assert sums.waiting_end[c0 // chain] == len(waiting)
+        for i, (ref, offered) in enumerate(twin):
+            t = c0 + i
+            assert sample.rtt_s[t] == ref.time_s
+            assert list(sample.counts[t]) == [ref.stops, ref.highest, ref.lowest, ref.boarded,
+                                              ref.peak_load, offered - ref.boarded, offered]
+    assert np.array_equal(sums.count_sum.sum(axis=0), sample.counts.sum(axis=0))
+    assert sums.count_sum[:, K.BOARDED].sum() + sums.waiting_end.sum() == offsets[-1]
+    assert sums.rtt_sum_s.sum() + (sums.rtt_shift_s * sums.trips).sum() == pytest.approx(
+        sample.rtt_s.sum(), rel=1e-12)
 
 
 def test_sampler_draws_from_the_od_matrix():

@@ -75,15 +75,22 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
 
     calc = sub.add_parser(
-        "calc", help="classical up-peak round-trip time, interval and handling capacity",
-        description="Classical up-peak calculation (ISO 8100-32 / CIBSE Guide D formulae). "
-                    "With --passengers, at that car load; otherwise in demand mode, at the car "
-                    "load that carries traffic.arrival_rate_pct_5min.")
+        "calc", help="classical round-trip time, interval and handling capacity (any traffic mix)",
+        description="Classical calculation: the up-peak formulae of ISO 8100-32 / CIBSE Guide D "
+                    "for up-peak traffic, the general analysis (expected up and down stops, "
+                    "highest and lowest reversal floors) for any other traffic mix. With "
+                    "--passengers, at that load; otherwise in demand mode, at the load that "
+                    "carries traffic.arrival_rate_pct_5min. Passenger counts are Poisson (arrivals "
+                    "at random over each car's interval) unless --fixed.")
     _add_file(calc)
     calc.add_argument("--passengers", metavar="P", type=passengers_type,
-                      help="passengers per trip [persons], a real number >= 0 (given-load mode)")
-    calc.add_argument("--poisson", action="store_true",
-                      help="use the Poisson-passenger forms of S and H")
+                      help="passengers per trip [persons], a real number >= 0, at most what a "
+                           "car can carry (given-load mode)")
+    counts = calc.add_mutually_exclusive_group()
+    counts.add_argument("--fixed", action="store_true",
+                        help="fixed passenger counts: the ISO 8100-32 forms of S and H")
+    counts.add_argument("--poisson", action="store_true",
+                        help="Poisson passenger counts with mean P (the default)")
     _add_json(calc)
     calc.set_defaults(handler="experiments.cli.calc")
 
@@ -104,8 +111,9 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     cmp_ = sub.add_parser(
         "compare", help="compare allocation rules (conventional against destination grouping)",
         description="Compare allocation rules on the very same passenger batches (common random "
-                    "numbers). A trial is one batch of cars x P passengers; gains are against "
-                    "`random` (conventional control) with paired 95 %% intervals.")
+                    "numbers). A trial is one round of the group, each car's passengers arriving "
+                    "over its interval (cars x P on average); gains are against `random` "
+                    "(conventional control) with paired 95 % intervals.")
     _add_file(cmp_)
     cmp_.add_argument("--rules", metavar="LIST", help=rules_help)
     cmp_.add_argument("--cars-open", metavar="K", type=whole(1, "K must be a whole number of cars >= 1"),
@@ -148,12 +156,12 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "speed, for the smallest one whose interval and 5-minute handling capacity "
                     "at design load meet the criteria under each rule, and say what "
                     "destination control saves. Default criteria: interval <= 30 s and "
-                    "handling capacity >= the file's demand (or 12 %%), common office practice "
+                    "handling capacity >= the file's demand (or 12 %), common office practice "
                     "(CIBSE Guide D).")
     _add_file(sz)
     sz.add_argument("--interval-max", metavar="S", type=number(0.0, True, "S must be > 0 [s]"),
                     help="largest acceptable interval at design load [s] (default 30)")
-    sz.add_argument("--hc-min", metavar="PCT", type=number(0.0, True, "PCT must be > 0 [%%]"),
+    sz.add_argument("--hc-min", metavar="PCT", type=number(0.0, True, "PCT must be > 0 [%]"),
                     help="least 5-minute handling capacity [%% of population] (default: the "
                          "file's demand, else 12)")
     sz.add_argument("--cars", metavar="A:B", default="1:10",
@@ -162,6 +170,10 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     help="rated loads to try [persons], e.g. 13,16,21 (default: the file's)")
     sz.add_argument("--speeds", metavar="LIST",
                     help="rated speeds to try [m/s], e.g. 1.6,2.5,3.5 (default: the file's)")
+    sz.add_argument("--cars-open", metavar="K", type=whole(1, "K must be a whole number of cars >= 1"),
+                    help="cars open to each allocation of a destination rule (min(K, cars) per "
+                         "candidate; default 2, the realisable value: the car loading at the "
+                         "lobby and the next one; every car open is the ideal bound)")
     sz.add_argument("--rules", metavar="LIST", help=rules_help)
     sz.add_argument("--fixed", action="store_true", help="fixed passenger counts (default Poisson)")
     sz.add_argument("--quiet", action="store_true", help="no progress bar")

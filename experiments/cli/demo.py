@@ -16,9 +16,9 @@ def run(args, scenario=None) -> int:
     from experiments.report_job import run_job
     path = demo_building_path()
     scenario = load_scenario(path)
-    print_classical(classical_result(scenario, None, False),
+    print_classical(classical_result(scenario, None, True),
                     f"{scenario.building.name} (invented demo building): classical "
-                    f"up-peak calculation (demand mode)")
+                    f"up-peak calculation (demand mode, Poisson passenger counts)")
     out = output_dir(args.out)
     result = run_job(scenario, path, out, seed=args.seed, quiet=False)
     m = result["monte_carlo"]
@@ -28,10 +28,12 @@ def run(args, scenario=None) -> int:
     rows = [[x["rule"], x["round_trip_time_s"], x["ci95_s"], x["interval_s"], x["expected_stops"],
              x["hc_gain_pct_vs_random"], x["hc_gain_ci95_pct"], x["design_hc"]]
             for x in result["rules"]]
-    print("\nAllocation rules on the same passengers:")
+    print("\nAllocation rules on the same passengers (Poisson counts, every car open to "
+          "allocation):")
     print(grid_table(["rule", "RTT [s]", "+/-", "INT [s]", "stops", "HC gain [%]", "+/-",
                       "HC at design load [%/5min]"], rows))
-    print("\nSizing (interval and handling capacity at design load):")
+    print(f"\nSizing (interval and handling capacity at design load; destination rules with "
+          f"{result['sizing']['cars_open']} cars open to allocation):")
     for s in result["sizing"]["savings"]:
         print("- " + s["saving"])
     print("\n" + result["headline"])

@@ -22,7 +22,7 @@ def sizing(scenario: Scenario, args) -> dict:
     total = len(cars) * len(loads) * len(speeds)
     with progress_bar(total, args.quiet or args.json, "sizing") as bar:
         result = size_group(scenario, rules, criteria, cars, loads, speeds,
-                            poisson=not args.fixed, trials=args.trials,
+                            cars_open=args.cars_open, poisson=not args.fixed, trials=args.trials,
                             ci_target_pct=args.ci_target, seed=args.seed, threads=args.threads,
                             on_candidate=bar.update)
     return {"building": scenario.building.name, **result}
@@ -37,11 +37,14 @@ def run(args, scenario: Scenario) -> int:
         return 0
     c = d["criteria"]
     print(f"{d['building']}: smallest group with interval <= {c['interval_max_s']:g} s and "
-          f"handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load")
-    rows = [[x["rule"], x["cars"] if x["found"] else "none", x["rated_load_persons"],
-             x["rated_speed_mps"], x["interval_s"], x["handling_capacity_pct_5min"],
-             x["round_trip_time_s"]] for x in d["designs"]]
-    print(grid_table(["rule", "cars", "load [persons]", "speed [m/s]", "INT [s]",
+          f"handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load "
+          f"({d['passenger_model']} passenger counts; destination rules with "
+          f"{d['cars_open']} car(s) open to allocation"
+          f"{' (the default, realisable)' if args.cars_open is None else ''})")
+    rows = [[x["rule"], x["cars"] if x["found"] else "none", x["cars_open"],
+             x["rated_load_persons"], x["rated_speed_mps"], x["interval_s"],
+             x["handling_capacity_pct_5min"], x["round_trip_time_s"]] for x in d["designs"]]
+    print(grid_table(["rule", "cars", "cars open", "load [persons]", "speed [m/s]", "INT [s]",
                       "HC [%/5min]", "RTT [s]"], rows))
     for s in d["savings"]:
         print("- " + s["saving"])

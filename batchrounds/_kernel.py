@@ -15,7 +15,11 @@ passengers those k cars carry, listed car by car. The rule then shares the
 batch between the k cars, each taking exactly its room, so every rule carries
 the very same passengers in the very same numbers per car (equal car load),
 and the conventional rule (`random`, an arrival-order cut) reproduces
-conventional control exactly: the one-car Monte Carlo's chain of trips. Each
+conventional control exactly: the one-car Monte Carlo's chain of trips. When
+the batch holds passengers of both directions the rule shares the upward and
+the downward ones apart (two batches of one call), each car's room in a
+direction being what it carries that way under conventional control: a car
+then never needs to hold more at once than conventional control puts in it. Each
 car's trip is timed by the trip model (:func:`roundtrip.schedule.car_trip`);
 a passenger a rule's car cannot take (the rated load aboard at once) waits for
 the next sub-batch. Nobody is dropped.
@@ -182,13 +186,18 @@ def _mixed_chain(rule, stream, ch, first, last, alias, layout, timing, table, ou
     car_of = np.empty(cap, np.int64)
     scratch = np.empty(4 * cap + 5 * kk + RULE_SCRATCH_FIXED, np.int64)
     trip = new_scratch(cap, n_levels)
-    views = np.zeros(kk, dtype=CAR_VIEW)
+    views = np.zeros(2 * kk, dtype=CAR_VIEW)
+    car_in = np.empty(cap, np.int64)             # each batch passenger's conventional car
+    pos = np.empty(cap, np.int64)
+    d_orig = np.empty(cap, np.int64)
+    d_dest = np.empty(cap, np.int64)
+    d_car = np.empty(cap, np.int64)
     waiting_at = np.empty(kk, np.int64)
     left_at = np.empty(kk, np.int64)
     pre = np.zeros((1, N_COUNTS), np.int64)
-    b_off = np.zeros(2, np.int64)
-    car_start = np.zeros(1, np.int64)
-    car_stop = np.zeros(1, np.int64)
+    b_off = np.zeros(3, np.int64)
+    car_start = np.zeros(2, np.int64)
+    car_stop = np.zeros(2, np.int64)
     q = 0
     ticket = 0
     for t in range(first, last):
@@ -219,23 +228,53 @@ def _mixed_chain(rule, stream, ch, first, last, alias, layout, timing, table, ou
                         q_dest[kept] = q_dest[i]
                         q_tick[kept] = q_tick[i]
                         kept += 1
-                views[c]["room"] = q - kept
+                for i in range(n - (q - kept), n):
+                    car_in[i] = c
                 waiting_at[c] = q
                 left_at[c] = kept
                 q = kept
-            b_off[1] = n
+            # the rule shares each direction's passengers (each car keeps its up and its
+            # down count, so no car need hold more at once than under conventional control)
+            nu = 0
+            for i in range(n):
+                if b_dest[i] > b_orig[i]:
+                    pos[nu] = i
+                    nu += 1
+            nd = nu
+            for i in range(n):
+                if b_dest[i] < b_orig[i]:
+                    pos[nd] = i
+                    nd += 1
+            for x in range(n):
+                d_orig[x] = b_orig[pos[x]]
+                d_dest[x] = b_dest[pos[x]]
+            for c in range(2 * kk):
+                views[c]["room"] = 0
+            for x in range(n):
+                c = car_in[pos[x]]
+                views[c + (0 if x < nu else k)]["room"] += 1
+            b_off[1] = nu
+            b_off[2] = n
+            car_start[0] = 0
             car_stop[0] = k
-            rule(RuleBatches(b_orig, b_dest, b_off, views[:k], car_start, car_stop), timing, table,
-                 scratch, car_of)
+            car_start[1] = k
+            car_stop[1] = 2 * k
+            rule(RuleBatches(d_orig, d_dest, b_off, views[:2 * k], car_start, car_stop), timing,
+                 table, scratch, d_car)
+            for x in range(n):
+                car_of[pos[x]] = d_car[x]
             # time each car with its passengers; whoever its car cannot take waits again
             r = 0
             for c in range(k):
                 m = 0
                 for i in range(n):
-                    if car_of[i] == c:
-                        o_car[m] = b_orig[i]
-                        d_car[m] = b_dest[i]
-                        t_car[m] = b_tick[i]
+                    if car_of[i] == c:            # its passengers, in arrival order
+                        o, d, tk = b_orig[i], b_dest[i], b_tick[i]
+                        x = m
+                        while x > 0 and t_car[x - 1] > tk:
+                            o_car[x], d_car[x], t_car[x] = o_car[x - 1], d_car[x - 1], t_car[x - 1]
+                            x -= 1
+                        o_car[x], d_car[x], t_car[x] = o, d, tk
                         m += 1
                 out.rtt_s[t, c0 + c] = _timed(o_car, d_car, m, timing, trip, counts_t, c0 + c)
                 for i in range(m):

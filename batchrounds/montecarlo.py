@@ -38,7 +38,7 @@ import numpy as np
 from allocation import contract as K
 from allocation.registry import Rule, baseline_rule, get_rule
 from roundtrip.building import Building, LiftGroup, Traffic
-from roundtrip.classical import average_waiting_time_s, is_uppeak
+from roundtrip.classical import average_waiting_time_s, traffic_mix_name
 from roundtrip.montecarlo import (Z95, Estimate, PassengerSampler, check_passengers,
                                   check_run_options, chunk_plan, meets_target, with_threads)
 from roundtrip.schedule import TripStream, TripTiming, trip_timing
@@ -377,5 +377,5 @@ def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_ca
     return Comparison(building.name, L, int(k), group.rated_load_persons,
                       group.design_load_persons, building.total_population,
                       float(passengers_per_car), "poisson" if poisson else "fixed",
-                      "up-peak" if is_uppeak(traffic) else "mixed", int(moments.n), int(seed),
+                      traffic_mix_name(traffic), int(moments.n), int(seed),
                       results, moments)

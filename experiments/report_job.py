@@ -325,8 +325,9 @@ def _tables(classical, mc, at_demand, sizing, criteria) -> list[dict]:
           "rows": [[r["rule"], r["round_trip_time_s"], r["ci95_s"], r["interval_s"],
                     r["expected_stops"], r["highest_reversal_floor"], r["hc_gain_pct_vs_random"],
                     r["hc_gain_ci95_pct"], r["design_hc"]] for r in at_demand.values()]}
-    t3 = {"title": f"Sizing: smallest group with interval ≤ {criteria.interval_max_s:g} s and "
-                   f"handling capacity ≥ {criteria.hc_min_pct:g} % at design load (destination "
+    t3 = {"title": f"Sizing: smallest group with interval ≤ {criteria.interval_max_s:g} s at the "
+                   f"demand and handling capacity ≥ {criteria.hc_min_pct:g} % at design load "
+                   f"(destination "
                    f"rules with {sizing['cars_open']} cars open to allocation)",
           "columns": ["rule", "cars", "rated load [persons]", "speed [m/s]", "interval [s]",
                       "HC [%/5 min]"],

@@ -156,8 +156,9 @@ RATED_SPEED_NOTE_PCT = 1.0
 class ClassicalResult:
     """Every figure of one classical calculation (units in the names).
 
-    ``traffic_mix`` is "up-peak" (the up-peak formula of this module) or "mixed"
-    (the general analysis of :mod:`roundtrip.general_analysis`). The car load is
+    ``traffic_mix`` is "up-peak" (the up-peak formula of this module), or
+    "down-peak", "interfloor" or "mixed" (the general analysis of
+    :mod:`roundtrip.general_analysis`). The car load is
     the mean load on the busiest stretch of the trip (up-peak: P, everyone rides
     up from the lobby), and the design load limits it (so a lunch-time trip may
     carry more passengers than the design load, never more at once). Waiting and
@@ -210,6 +211,17 @@ def is_uppeak(traffic: Traffic | None) -> bool:
     """Up-peak traffic: every passenger enters at the lobby (None means up-peak)."""
     return traffic is None or (traffic.incoming == 1.0 and traffic.outgoing == 0.0
                                and traffic.interfloor == 0.0)
+
+
+def traffic_mix_name(traffic: Traffic | None) -> str:
+    """"up-peak", "down-peak" (all outgoing), "interfloor" (all interfloor) or "mixed"."""
+    if is_uppeak(traffic):
+        return "up-peak"
+    if traffic.outgoing == 1.0:
+        return "down-peak"
+    if traffic.interfloor == 1.0:
+        return "interfloor"
+    return "mixed"
 
 
 def _exact_round_trip_time_s(building: Building, group: LiftGroup, od, passengers: float,
@@ -351,7 +363,8 @@ def _general_calculation(building, group, passengers, poisson, traffic, mode, sa
     saturated = _overloaded(trip.busiest_stretch_load, group) if saturated is None else saturated
     demand, demand_pct = _demand(building, traffic)
     return ClassicalResult(
-        mode=mode, traffic_mix="mixed", passenger_model="poisson" if poisson else "fixed",
+        mode=mode, traffic_mix=traffic_mix_name(traffic),
+        passenger_model="poisson" if poisson else "fixed",
         passengers_per_trip=float(passengers), expected_stops=trip.expected_stops,
         expected_up_stops=trip.up_stops, expected_down_stops=trip.down_stops,
         highest_reversal_floor=trip.highest_reversal_floor,

@@ -34,7 +34,8 @@ from . import _trip_kernel as K
 from ._chain_kernel import ChainSums
 from ._chain_kernel import chain_trips as chain_kernel
 from .building import Building, LiftGroup, Traffic
-from .classical import average_waiting_time_s, demand_calculation, design_passengers, is_uppeak
+from .classical import (average_waiting_time_s, demand_calculation, design_passengers, is_uppeak,
+                        traffic_mix_name)
 from .passengers import AliasTable, od_alias_table, od_matrix, passenger_counts
 from .schedule import TripOut, TripStream, TripTiming, trip_timing
 from .stream import (CHAIN_TRIPS, CHUNK_TRIPS, adaptive_sizes, chunk_sizes, chunks,
@@ -450,7 +451,7 @@ def _result(building, group, traffic, passengers, poisson, sums: TripSums, seed,
         design_load_persons=group.design_load_persons,
         total_population=building.total_population,
         passenger_model="poisson" if poisson else "fixed",
-        traffic_mix="up-peak" if is_uppeak(traffic) else "mixed",
+        traffic_mix=traffic_mix_name(traffic),
         passengers_per_trip=float(passengers),
         round_trip_time=sums.rtt(),
         stops=sums.column(K.STOPS),

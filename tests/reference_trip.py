@@ -92,9 +92,10 @@ def reference_rounds(rounds, cars_open, allocate, flight_s, capacity, stop_overh
     ``rounds`` lists each round's cars (departure order), each car its new passengers
     (origin, destination) in arrival order. For each sub-batch of ``cars_open`` cars,
     conventional control loads the queue car by car (the car's room is whoever boards
-    it); ``allocate(origins, destinations, rooms)`` shares that batch, listed car by car,
-    between the cars; every car's trip is timed, and whoever its car cannot take goes
-    back to the queue in arrival order. Returns ([[(trip, offered, left), ...per car],
+    it); ``allocate(origins, destinations, rooms)`` shares that batch's upward and then its
+    downward passengers, each listed car by car, between the cars, each car's room in a
+    direction being what it carries that way; every car's trip is timed, and whoever its
+    car cannot take goes back to the queue in arrival order. Returns ([[(trip, offered, left), ...per car],
     ...per round], still waiting at the end).
     """
     def trip(passengers):
@@ -109,7 +110,7 @@ def reference_rounds(rounds, cars_open, allocate, flight_s, capacity, stop_overh
         row = [None] * L
         for c0 in range(0, L, cars_open):
             k = min(L, c0 + cars_open) - c0
-            batch, rooms, waiting, left = [], [], [], []
+            batch, waiting, left = [], [], []
             for c in range(k):
                 for o, d in cars[c0 + c]:
                     queue.append((ticket, o, d))
@@ -117,15 +118,22 @@ def reference_rounds(rounds, cars_open, allocate, flight_s, capacity, stop_overh
                 ref = trip([(o, d) for _, o, d in queue])
                 boarded = [q for q, on in zip(queue, ref.boarded_flags) if on]
                 rest = [q for q, on in zip(queue, ref.boarded_flags) if not on]
-                batch += boarded
-                rooms.append(len(boarded))
+                batch += [(c, q) for q in boarded]
                 waiting.append(len(queue))
                 left.append(len(rest))
                 queue = rest
-            car_of = allocate([o for _, o, _ in batch], [d for _, _, d in batch], rooms)
+            shared = []
+            for going_up in (True, False):
+                part = [q for c, q in batch if (q[2] > q[1]) == going_up]
+                rooms = [sum(1 for c, q in batch if c == j and (q[2] > q[1]) == going_up)
+                         for j in range(k)]
+                if part:
+                    cars_of = allocate([o for _, o, _ in part], [d for _, _, d in part], rooms)
+                    shared += list(zip(part, cars_of))
+            shared.sort()
             returned = []
             for c in range(k):
-                mine = [q for q, a in zip(batch, car_of) if a == c]
+                mine = [q for q, a in shared if a == c]
                 ref = trip([(o, d) for _, o, d in mine])
                 returned += [q for q, on in zip(mine, ref.boarded_flags) if not on]
                 row[c0 + c] = (ref, waiting[c], left[c] + ref.left_behind)

@@ -153,14 +153,15 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     sz = sub.add_parser(
         "size", help="smallest group meeting interval and handling-capacity criteria, per rule",
         description="Search lift groups, fewest cars first, then smallest car, then slowest "
-                    "speed, for the smallest one whose interval and 5-minute handling capacity "
-                    "at design load meet the criteria under each rule, and say what "
-                    "destination control saves. Default criteria: interval <= 30 s and "
-                    "handling capacity >= the file's demand (or 12 %), common office practice "
-                    "(CIBSE Guide D).")
+                    "speed, for the smallest one whose interval at the demand and 5-minute "
+                    "handling capacity at design load meet the criteria under each rule, and "
+                    "say what destination control saves. Default criteria: interval <= 30 s "
+                    "and handling capacity >= the file's demand (or 12 %), common office "
+                    "practice (CIBSE Guide D).")
     _add_file(sz)
     sz.add_argument("--interval-max", metavar="S", type=number(0.0, True, "S must be > 0 [s]"),
-                    help="largest acceptable interval at design load [s] (default 30)")
+                    help="largest acceptable interval at the load the demand (--hc-min) sets "
+                         "[s] (default 30)")
     sz.add_argument("--hc-min", metavar="PCT", type=number(0.0, True, "PCT must be > 0 [%]"),
                     help="least 5-minute handling capacity [%% of population] (default: the "
                          "file's demand, else 12)")

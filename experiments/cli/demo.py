@@ -32,7 +32,8 @@ def run(args, scenario=None) -> int:
           "allocation):")
     print(grid_table(["rule", "RTT [s]", "+/-", "INT [s]", "stops", "HC gain [%]", "+/-",
                       "HC at design load [%/5min]"], rows))
-    print(f"\nSizing (interval and handling capacity at design load; destination rules with "
+    print(f"\nSizing (interval at the demand, handling capacity at design load; destination "
+          f"rules with "
           f"{result['sizing']['cars_open']} cars open to allocation):")
     for s in result["sizing"]["savings"]:
         print("- " + s["saving"])

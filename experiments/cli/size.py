@@ -36,16 +36,17 @@ def run(args, scenario: Scenario) -> int:
         print(dumps(out))
         return 0
     c = d["criteria"]
-    print(f"{d['building']}: smallest group with interval <= {c['interval_max_s']:g} s and "
-          f"handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load "
+    print(f"{d['building']}: smallest group with interval <= {c['interval_max_s']:g} s at the "
+          f"demand and handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load "
           f"({d['passenger_model']} passenger counts; destination rules with "
           f"{d['cars_open']} car(s) open to allocation"
           f"{' (the default, realisable)' if args.cars_open is None else ''})")
     rows = [[x["rule"], x["cars"] if x["found"] else "none", x["cars_open"],
              x["rated_load_persons"], x["rated_speed_mps"], x["interval_s"],
              x["handling_capacity_pct_5min"], x["round_trip_time_s"]] for x in d["designs"]]
-    print(grid_table(["rule", "cars", "cars open", "load [persons]", "speed [m/s]", "INT [s]",
-                      "HC [%/5min]", "RTT [s]"], rows))
+    print(grid_table(["rule", "cars", "cars open", "load [persons]", "speed [m/s]",
+                      "INT at demand [s]", "HC at design load [%/5min]", "RTT at design [s]"],
+                     rows))
     for s in d["savings"]:
         print("- " + s["saving"])
     for x in d["designs"]:

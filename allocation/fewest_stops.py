@@ -8,8 +8,8 @@ from .registry import register
     "fewest-stops",
     summary="Each passenger, in order of arrival, is given the car to which they add the "
             "fewest new stops; on a tie, the lighter car, then the car whose highest floor "
-            "rises least. No car takes more than its equal share of the batch, so all "
-            "leave with similar loads.",
+            "rises least. No car takes more than its room (its share of the batch), so all "
+            "leave with the loads the engine gives them.",
     source="Greedy stop-minimising hall-call allocation, the simplest destination-control "
            "heuristic (common practice).",
     default=True, peak=True)

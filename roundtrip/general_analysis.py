@@ -52,7 +52,10 @@ def _no_passenger(q, passengers: float, poisson: bool):
     q = np.clip(np.asarray(q, dtype=float), 0.0, 1.0)
     if poisson:
         return np.exp(-passengers * q)
-    return np.power(1.0 - q, passengers)
+    rest = 1.0 - q
+    # a set holding every cell sums to 1 only up to rounding, which a power P < 1 would
+    # magnify (1e-16 ** 0.5 = 1e-8): such a remainder is zero
+    return np.power(np.where(rest < 1e-12, 0.0, rest), passengers)
 
 
 def _either(g, z, x, y):

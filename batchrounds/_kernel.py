@@ -25,8 +25,9 @@ a passenger a rule's car cannot take (the rated load aboard at once) waits for
 the next sub-batch. Nobody is dropped.
 
 Rounds form chains (:data:`roundtrip.stream.CHAIN_ROUNDS` rounds) that start
-with nobody waiting; chains are independent and run in parallel, so the
-numbers are the same on any thread count.
+with nobody waiting; chains are independent and run on threads
+(:func:`roundtrip.threads.run_chains`), so the numbers are the same on any
+thread count.
 
 Every passenger boarding at the lobby (up-peak): the queue is first in, first
 out, so the batch of each sub-batch is the next slice of the stream and the
@@ -43,7 +44,7 @@ from __future__ import annotations
 from typing import NamedTuple
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 from allocation.contract import (BOARDED, CAR_VIEW, LEFT_BEHIND, N_COUNTS, OFFERED,
                                  RULE_SCRATCH_FIXED, RuleBatches)
@@ -354,11 +355,12 @@ def _merge(q_orig, q_dest, q_tick, q, r_orig, r_dest, r_tick, r, m_orig, m_dest,
     return m
 
 
-@njit(cache=True, parallel=True, nogil=True)
-def group_trips(rule, stream, alias, layout, timing, table, lobby_only, out):
-    """Every round of the stream (round t's car c is trip t L + c), in chains of
-    ``layout.chain_rounds`` rounds run in parallel, each allocated by ``rule`` (a
-    compiled batch driver) and every car timed.
+@njit(cache=True, nogil=True)
+def group_trips(rule, stream, alias, layout, timing, table, lobby_only, out, c0, c1):
+    """Chains c0 ... c1 - 1 of the stream's rounds (round t's car c is trip t L + c), each
+    of ``layout.chain_rounds`` rounds, each round allocated by ``rule`` (a compiled batch
+    driver) and every car timed. Chains are independent, so any split of them between
+    threads (:func:`roundtrip.threads.run_chains`) gives the same numbers.
 
     Outputs (``out``, a :class:`GroupOut`): rtt_s[t, car] [s], counts[t, car, :]
     (trip counts as in :mod:`roundtrip.schedule`, with OFFERED the passengers waiting
@@ -369,8 +371,7 @@ def group_trips(rule, stream, alias, layout, timing, table, lobby_only, out):
     """
     n_rounds = (stream.offsets.shape[0] - 1) // layout.n_cars
     R = layout.chain_rounds
-    n_chains = (n_rounds + R - 1) // R
-    for ch in prange(n_chains):
+    for ch in range(c0, c1):
         first = ch * R
         last = min(n_rounds, first + R)
         if lobby_only:

@@ -43,6 +43,7 @@ from roundtrip.montecarlo import (Z95, Estimate, PassengerSampler, check_passeng
                                   check_run_options, chunk_plan, meets_target, with_threads)
 from roundtrip.schedule import TripStream, TripTiming, trip_timing
 from roundtrip.stream import CHAIN_ROUNDS, CHUNK_ROUNDS, chunks, count_table
+from roundtrip.threads import run_chains
 
 from . import _kernel as G
 
@@ -299,9 +300,9 @@ def group_sample(rule: Rule, table: np.ndarray, sampler: PassengerSampler, timin
     n = (stream.offsets.size - 1) // cars
     chains = max(1, -(-n // chain_rounds))
     out = G.GroupOut.empty(n, cars, chains, sampler.n_levels)
-    G.group_trips(rule.compiled, stream, sampler.alias,
-                  G.GroupLayout(int(cars), int(cars_open), int(chain_rounds)), timing, table,
-                  sampler.lobby_origins_only, out)
+    run_chains(G.group_trips, chains, rule.compiled, stream, sampler.alias,
+               G.GroupLayout(int(cars), int(cars_open), int(chain_rounds)), timing, table,
+               sampler.lobby_origins_only, out)
     if out.unallocated.any():
         raise RuntimeError(f"rule {rule.name!r} gave {int(out.unallocated.sum())} passenger(s) no "
                            f"car though the cars had room: a defect of the rule")

@@ -19,10 +19,11 @@ from __future__ import annotations
 from typing import NamedTuple
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
-from ._trip_kernel import (BOARDED, LEFT_BEHIND, N_COUNTS, car_trip, draw_cell,
-                           lobby_trip_of_mask, new_scratch)
+from ._trip_kernel import (BOARDED, HIGHEST, LEFT_BEHIND, LOWEST, N_COUNTS, OFFERED, PEAK_LOAD,
+                           STOPS, _lobby_route, car_trip, draw_cell, new_scratch, trip_time_s,
+                           write_counts)
 
 
 class ChainSums(NamedTuple):
@@ -99,14 +100,20 @@ def _uppeak_chain(stream, c, first, last, alias, timing, sums, keep, sample):
     The lobby queue is first in, first out, so those waiting are always the latest
     arrivals: ``uniforms[head:offsets[t + 1]]``. The car takes the first
     min(waiting, rated load) of them; each one's destination goes straight into
-    the stop mask.
+    the stop mask. The sums are kept in local variables and written once.
     """
     one = np.uint64(1)
     uniforms = stream.uniforms
     offsets = stream.offsets
     rated = timing.rated_load
+    flight_s = timing.flight_s
     counts = np.zeros((1, N_COUNTS), np.int64)
     head = offsets[first]
+    shift = 0.0
+    r1 = 0.0
+    r2 = 0.0
+    s1 = s2 = h1 = h2 = b1 = b2 = l1 = l2 = w1 = w2 = 0
+    lefts = 0
     for t in range(first, last):
         waiting = offsets[t + 1] - head
         b = min(waiting, rated)
@@ -114,13 +121,42 @@ def _uppeak_chain(stream, c, first, last, alias, timing, sums, keep, sample):
         for i in range(head, head + b):
             mask |= one << np.uint64(alias.cell_dest[draw_cell(uniforms[i], alias)])
         head += b
-        rtt = lobby_trip_of_mask(mask, waiting, b, timing, counts, 0)
-        _add_trip(sums, c, rtt, counts, t == first)
-        sums.load_up[c, 0] += b                # everyone aboard rides the first stretch
+        flight, stops, highest = _lobby_route(mask, flight_s)
+        rtt = trip_time_s(flight, stops, b, timing)
+        if t == first:
+            shift = rtt
+        x = rtt - shift
+        r1 += x
+        r2 += x * x
+        left = waiting - b
+        s1 += stops
+        s2 += stops * stops
+        h1 += highest
+        h2 += highest * highest
+        b1 += b
+        b2 += b * b
+        l1 += left
+        l2 += left * left
+        w1 += waiting
+        w2 += waiting * waiting
+        if left > 0:
+            lefts += 1
         if keep:
+            write_counts(counts, 0, stops, highest, 0, b, b, left, waiting)
             sample.rtt_s[t] = rtt
             for k in range(N_COUNTS):
                 sample.counts[t, k] = counts[0, k]
+    sums.rtt_shift_s[c] = shift
+    sums.rtt_sum_s[c] = r1
+    sums.rtt_sq_s2[c] = r2
+    for k, v1, v2 in ((STOPS, s1, s2), (HIGHEST, h1, h2), (BOARDED, b1, b2),
+                      (PEAK_LOAD, b1, b2), (LEFT_BEHIND, l1, l2), (OFFERED, w1, w2)):
+        sums.count_sum[c, k] = v1
+        sums.count_sq[c, k] = v2
+    sums.count_sum[c, LOWEST] = 0
+    sums.count_sq[c, LOWEST] = 0
+    sums.left_trips[c] = lefts
+    sums.load_up[c, 0] = b1                   # everyone aboard rides the first stretch
     sums.trips[c] = last - first
     sums.arrivals[c] = offsets[last] - offsets[first]
     sums.waiting_end[c] = offsets[last] - head
@@ -186,20 +222,20 @@ def _mixed_chain(stream, c, first, last, alias, timing, sums, keep, sample):
     sums.waiting_end[c] = q
 
 
-@njit(cache=True, parallel=True, nogil=True)
-def chain_trips(stream, alias, timing, chain_trips, lobby_only, sums, keep, sample):
-    """Every chain of ``chain_trips`` consecutive trips of the stream, in parallel.
+@njit(cache=True, nogil=True)
+def chain_trips(stream, alias, timing, chain_trips, lobby_only, sums, keep, sample, c0, c1):
+    """Chains c0 ... c1 - 1 of ``chain_trips`` consecutive trips of the stream.
 
     Chain c is trips c x chain_trips ... (c + 1) x chain_trips - 1 (the last one
     may be shorter); its sums go to row c of ``sums`` (a :class:`ChainSums`).
     ``lobby_only``: every passenger boards at the lobby (the up-peak kernel).
     With ``keep`` the trips' own figures are written into ``sample`` (a
     :class:`roundtrip.schedule.TripOut` as long as the stream). A chain's figures
-    depend only on its own trips, so they are the same on any thread count.
+    depend only on its own trips, so any split of the chains between threads
+    (:func:`roundtrip.threads.run_chains`) gives the same numbers.
     """
     n_trips = stream.offsets.shape[0] - 1
-    n_chains = (n_trips + chain_trips - 1) // chain_trips
-    for c in prange(n_chains):
+    for c in range(c0, c1):
         first, last = _chain_bounds(c, chain_trips, n_trips)
         if lobby_only:
             _uppeak_chain(stream, c, first, last, alias, timing, sums, keep, sample)

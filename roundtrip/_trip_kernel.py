@@ -37,7 +37,7 @@ from __future__ import annotations
 from typing import NamedTuple
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 # Columns of the integer result array of a trip.
 STOPS, HIGHEST, LOWEST, BOARDED, PEAK_LOAD, LEFT_BEHIND, OFFERED = range(7)
@@ -488,11 +488,6 @@ def _longest(offsets, first, last):
     return longest
 
 
-@njit(cache=True, inline="always")
-def _block(b, n_blocks, n_trials):
-    return b * n_trials // n_blocks, (b + 1) * n_trials // n_blocks
-
-
 @njit(cache=True)
 def _given_block(orig, dest, offsets, first, last, timing, out):
     """Trips ``first`` .. ``last - 1``; trip t's passengers are offsets[t]:offsets[t+1]."""
@@ -503,21 +498,8 @@ def _given_block(orig, dest, offsets, first, last, timing, out):
         out.rtt_s[t] = car_trip(orig[s:e], dest[s:e], e - s, timing, scratch, out.counts, t)
 
 
-@njit(cache=True, parallel=True)
-def given_car_trips(orig, dest, offsets, timing, n_blocks, out):
-    """Every trial is one car's trip with given passengers; trials are split into
-    ``n_blocks`` run in parallel. Each trial's result depends only on its own
-    passengers, so the numbers are the same for any thread count."""
-    n_trials = offsets.shape[0] - 1
-    for b in prange(n_blocks):
-        first, last = _block(b, n_blocks, n_trials)
-        _given_block(orig, dest, offsets, first, last, timing, out)
-
-
-@njit(cache=True, parallel=True)
-def sample_cells_parallel(uniforms, alias, n_blocks, origin_out, dest_out):
-    """Parallel :func:`sample_cells` over ``n_blocks`` contiguous blocks."""
-    n = uniforms.shape[0]
-    for b in prange(n_blocks):
-        first, last = _block(b, n_blocks, n)
-        sample_cells(uniforms[first:last], alias, origin_out[first:last], dest_out[first:last])
+@njit(cache=True, nogil=True)
+def given_car_trips(orig, dest, offsets, timing, out):
+    """Every trial is one car's trip with given passengers, each on its own (for tests
+    and diagrams; the Monte Carlo runs chains, :mod:`roundtrip._chain_kernel`)."""
+    _given_block(orig, dest, offsets, 0, offsets.shape[0] - 1, timing, out)

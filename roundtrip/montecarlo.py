@@ -38,6 +38,7 @@ from .classical import (average_waiting_time_s, demand_calculation, design_passe
                         traffic_mix_name)
 from .passengers import AliasTable, od_alias_table, od_matrix, passenger_counts
 from .schedule import TripOut, TripStream, TripTiming, trip_timing
+from .threads import run_chains
 from .stream import (CHAIN_TRIPS, CHUNK_TRIPS, adaptive_sizes, chunk_sizes, chunks,
                      count_table)
 
@@ -108,7 +109,7 @@ class PassengerSampler:
         """(origins, destinations) of the passengers that ``uniforms`` pick."""
         orig = np.empty(uniforms.size, dtype=np.int64)
         dest = np.empty(uniforms.size, dtype=np.int64)
-        K.sample_cells_parallel(uniforms, self.alias, _blocks(uniforms.size // 8), orig, dest)
+        K.sample_cells(uniforms, self.alias, orig, dest)
         return orig, dest
 
     def draw(self, rng: np.random.Generator, mean_passengers: float, n_trials: int,
@@ -178,11 +179,6 @@ class TripSums:
         return float(max(self.load_up.max(), self.load_down.max())) / self.trips
 
 
-def _blocks(n_trials: int) -> int:
-    import numba
-    return max(1, min(n_trials // 2000 + 1, 8 * numba.get_num_threads()))
-
-
 def time_trips(building: Building, group: LiftGroup, orig, dest, offsets,
                timing: TripTiming | None = None) -> TripSample:
     """Time one car's trip per trial for given passengers, each trip on its own (no
@@ -192,7 +188,7 @@ def time_trips(building: Building, group: LiftGroup, orig, dest, offsets,
     out = TripOut.empty(n)
     K.given_car_trips(np.ascontiguousarray(orig, dtype=np.int64),
                       np.ascontiguousarray(dest, dtype=np.int64),
-                      np.ascontiguousarray(offsets, dtype=np.int64), timing, _blocks(n), out)
+                      np.ascontiguousarray(offsets, dtype=np.int64), timing, out)
     return TripSample(out.rtt_s, out.counts)
 
 
@@ -205,8 +201,8 @@ def chain_sums(sampler: PassengerSampler, timing: TripTiming, stream: TripStream
     sums = ChainSums.empty(max(1, -(-n // chain_trips)), sampler.n_levels)
     keep = sample is not None
     out = sample if keep else _NO_SAMPLE
-    chain_kernel(stream, sampler.alias, timing, int(chain_trips), sampler.lobby_origins_only,
-                 sums, keep, out)
+    run_chains(chain_kernel, sums.trips.size, stream, sampler.alias, timing, int(chain_trips),
+               sampler.lobby_origins_only, sums, keep, out)
     return sums
 
 

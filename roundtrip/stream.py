@@ -22,9 +22,10 @@ and its chunking is part of what a seed means:
   target. Chunk j is drawn by its own generator,
   ``Generator(PCG64(SeedSequence(seed, spawn_key=(j,))))``: first one uniform
   per trip for the counts (none for a whole fixed P), the counts by
-  inversion of their distribution (:func:`count_table`), then one uniform per
-  passenger. A chunk never depends on another, so chunks may be drawn ahead of
-  time, or two at once, without changing a number.
+  inversion of their distribution (:func:`count_table`), then one uniform
+  per passenger (``Generator.random``). A chunk never depends on another, so
+  chunks may be drawn ahead of time, or two at once, without changing a
+  number.
 
 Memory is bounded by the chunk: estimates keep running sums, never a trip's
 own figures unless a caller asks for the sample.

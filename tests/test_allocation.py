@@ -118,7 +118,7 @@ def test_group_kernel_equals_the_plain_twin_round_by_round(bp, k, rule, data):
     out = G.GroupOut.empty(rounds, L, 1, n_levels)
     u = (np.arange(len(pairs)) + 0.5) / max(len(pairs), 1)
     G.group_trips(r.compiled, TripStream(u, offsets), identity_alias(o, d),
-                  G.GroupLayout(L, k, rounds), timing, table, lobby_only, out)
+                  G.GroupLayout(L, k, rounds), timing, table, lobby_only, out, 0, 1)
 
     def allocate(origins, destinations, rooms):
         cars = empty_cars(len(rooms), 0)

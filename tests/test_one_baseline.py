@@ -65,7 +65,8 @@ def test_conventional_rule_is_the_one_car_chain_trip_by_trip(mix, cars_open):
     rule = get_rule("random")
     out = G.GroupOut.empty(rounds, L, -(-rounds // R), sampler.n_levels)
     G.group_trips(rule.compiled, stream, sampler.alias, G.GroupLayout(L, cars_open, R), timing,
-                  rule.table(s.building, g, [cars_open], P), sampler.lobby_origins_only, out)
+                  rule.table(s.building, g, [cars_open], P), sampler.lobby_origins_only, out,
+                  0, out.waiting_end.size)
     one = TripOut.empty(rounds * L)
     chain_sums(sampler, timing, stream, R * L, one)
     assert np.array_equal(out.rtt_s.ravel(), one.rtt_s)

@@ -95,7 +95,9 @@ class RunningMoments:
             return
         mb = rows.mean(axis=0)
         dev = rows - mb
-        m2b = dev.T @ dev
+        # numpy's own loops, not BLAS: a threaded BLAS beside the kernels' threads and the
+        # stream's helper thread can stall for a tenth of a second on a busy machine
+        m2b = np.einsum("ij,ik->jk", dev, dev, optimize=False)
         n = self.n + nb
         d = mb - self.mean
         self.m2 += m2b + np.outer(d, d) * (self.n * nb / n)

@@ -101,14 +101,21 @@ def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[
 
 def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: int = 2026,
             ci_target_pct: float = 0.5, trials: int | None = None, quiet: bool = True,
-            threads=None) -> dict:
-    """Run the whole job and write ``report.html`` (and the charts, sweep.csv) into out_dir."""
+            threads=None, stages=None) -> dict:
+    """Run the whole job and write ``report.html`` (and the charts, sweep.csv) into out_dir.
+
+    ``stages(text)`` is told each stage as it begins (see
+    :class:`experiments.progress.Stages`)."""
+    from .progress import no_stages
+    stages = no_stages if stages is None else stages
     with _chart_worker() as worker:
         return _run_job(scenario, input_path, out_dir, worker, seed=seed,
-                        ci_target_pct=ci_target_pct, trials=trials, quiet=quiet, threads=threads)
+                        ci_target_pct=ci_target_pct, trials=trials, quiet=quiet, threads=threads,
+                        stages=stages)
 
 
-def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, quiet, threads):
+def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, quiet, threads,
+             stages):
     from roundtrip.classical import demand_calculation
     from allocation.registry import default_rules
     from batchrounds.montecarlo import compare_rules
@@ -125,16 +132,25 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
     run = dict(ci_target_pct=ci_target_pct, trials=trials, seed=seed, threads=threads)
     job = replace(scenario, traffic=traffic)
 
+    stages("classical calculation")
     classical = demand_calculation(b, g, traffic, poisson=True)
+    stages("Monte Carlo round trips at the demand (a first run compiles the kernels, "
+           "about 10 s)")
     mc = simulate_demand(b, g, traffic, **run)
+    stages(f"allocation rules on common passengers ({', '.join(rules)}; each rule compiles "
+           f"on first use)")
     comparison = compare_rules(b, g, rules, mc.passengers_per_trip, traffic=traffic, **run)
+    stages(f"demand sweep, {SWEEP_POINTS} points")
     sweep = demand_sweep(job, demand_points(demand), rules, max_trials=400_000,
                          quiet=quiet, **run)
+    stages(f"cars open to allocation, 1 to {g.cars}")
     opens = demand_sweep(job, [demand], rules, cars_open_list=list(range(1, g.cars + 1)),
                          max_trials=400_000, quiet=quiet, **run)
+    stages("sizing")
     criteria = default_criteria(job)
     sizing = size_group(job, rules, criteria, list(range(1, g.cars + 4)),
                         [g.rated_load_persons], [g.rated_speed_mps], **run)
+    stages("charts and the report")
     design = opens[opens["cars_open"] == g.cars].set_index("rule")
     at_demand = {r["rule"]: {**r, "design_hc": float(
         design.loc[r["rule"], "design_load_handling_capacity_pct_5min"])}
@@ -182,6 +198,7 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
         "stamp": stamp,
     }
     report = write_report(context, out_dir)
+    stages(f"report written: {report}")
     return {"report": str(report), "headline": headline, "headline_numbers": numbers,
             "figures": [str(p) for p in paths], "csv": str(out_dir / "sweep.csv"),
             "stamp": stamp, "rules": list(at_demand.values()),

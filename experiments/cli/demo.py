@@ -13,6 +13,9 @@ from .tables import grid_table
 
 
 def run(args, scenario=None) -> int:
+    from experiments.progress import Stages
+    stages = Stages()
+    stages("liftsort demo: the invented demo building")
     from experiments.report_job import run_job
     path = demo_building_path()
     scenario = load_scenario(path)
@@ -20,7 +23,7 @@ def run(args, scenario=None) -> int:
                     f"{scenario.building.name} (invented demo building): classical "
                     f"up-peak calculation (demand mode, Poisson passenger counts)")
     out = output_dir(args.out)
-    result = run_job(scenario, path, out, seed=args.seed, quiet=False)
+    result = run_job(scenario, path, out, seed=args.seed, quiet=False, stages=stages)
     m = result["monte_carlo"]
     print(f"\nMonte Carlo, conventional control at the demand: round-trip time "
           f"{m['round_trip_time_s']:.1f} s ± {m['ci95_s']:.1f} s, interval {m['interval_s']:.1f} s"

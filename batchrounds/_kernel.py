@@ -46,7 +46,7 @@ from typing import NamedTuple
 import numpy as np
 from numba import njit
 
-from allocation.contract import (BOARDED, CAR_VIEW, LEFT_BEHIND, N_COUNTS, OFFERED,
+from allocation.contract import (CAR_VIEW, LEFT_BEHIND, N_COUNTS, OFFERED,
                                  RULE_SCRATCH_FIXED, RuleBatches)
 from roundtrip.schedule import car_trip, draw_cell, lobby_trip_of_mask, new_scratch
 
@@ -104,6 +104,7 @@ def _uppeak_chain(rule, stream, ch, first, last, alias, layout, timing, table, o
     taken = np.empty(kk, np.int64)
     one = np.uint64(1)
     head = offsets[first * L]                  # the first passenger still waiting
+    aboard = 0
     for t0 in range(first, last, C):
         t1 = min(last, t0 + C)
         # conventional loading, car by car: each car's room, and the batches
@@ -151,11 +152,10 @@ def _uppeak_chain(rule, stream, ch, first, last, alias, layout, timing, table, o
                     waiting = waiting_at[(t - t0) * L + c0 + c]
                     out.rtt_s[t, c0 + c] = lobby_trip_of_mask(up_mask[c], waiting, taken[c],
                                                               timing, counts_t, c0 + c)
-                    counts_t[c0 + c, LEFT_BEHIND] = waiting - views[j * kk + c]["room"]
+                    aboard += taken[c]
                 j += 1
             out.unallocated[t] = lost
-            for c in range(L):
-                out.load_up[ch, 0] += counts_t[c, BOARDED]    # all ride the first stretch
+    out.load_up[ch, 0] = aboard                    # everyone aboard rides the first stretch
     out.waiting_end[ch] = offsets[last * L] - head
 
 

@@ -296,12 +296,13 @@ def sub_batch_sizes(cars: int, cars_open: int) -> list[int]:
 
 def group_sample(rule: Rule, table: np.ndarray, sampler: PassengerSampler, timing: TripTiming,
                  cars: int, cars_open: int, stream: TripStream,
-                 chain_rounds: int = CHAIN_ROUNDS) -> GroupSample:
+                 chain_rounds: int = CHAIN_ROUNDS, buffers: dict | None = None) -> GroupSample:
     """One rule on the rounds of ``stream`` (round t's car c is trip t x cars + c): the one
-    helper through which every caller runs the group kernel."""
+    helper through which every caller runs the group kernel. ``buffers`` (a dict the
+    caller keeps) lends the output arrays from one chunk to the next."""
     n = (stream.offsets.size - 1) // cars
     chains = max(1, -(-n // chain_rounds))
-    out = G.GroupOut.empty(n, cars, chains, sampler.n_levels)
+    out = _out(buffers, n, cars, chains, sampler.n_levels)
     run_chains(G.group_trips, chains, rule.compiled, stream, sampler.alias,
                G.GroupLayout(int(cars), int(cars_open), int(chain_rounds)), timing, table,
                sampler.lobby_origins_only, out)
@@ -309,6 +310,21 @@ def group_sample(rule: Rule, table: np.ndarray, sampler: PassengerSampler, timin
         raise RuntimeError(f"rule {rule.name!r} gave {int(out.unallocated.sum())} passenger(s) no "
                            f"car though the cars had room: a defect of the rule")
     return GroupSample(*out)
+
+
+def _out(buffers, n, cars, chains, n_levels) -> "G.GroupOut":
+    """Output arrays for n rounds: fresh, or the caller's, cleared, when they fit (the
+    per-round arrays are overwritten; the per-chain sums start from zero)."""
+    if buffers is None:
+        return G.GroupOut.empty(n, cars, chains, n_levels)
+    old = buffers.get("out")
+    if old is None or old.rtt_s.shape[0] < n or old.waiting_end.size < chains:
+        old = buffers["out"] = G.GroupOut.empty(n, cars, chains, n_levels)
+    out = G.GroupOut(old.rtt_s[:n], old.counts[:n], old.unallocated[:n],
+                     old.waiting_end[:chains], old.load_up[:chains], old.load_down[:chains])
+    for a in (out.unallocated, out.waiting_end, out.load_up, out.load_down):
+        a[...] = 0
+    return out
 
 
 def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_car: float, *,
@@ -360,14 +376,16 @@ def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_ca
     L = group.cars
     moments = RunningMoments(len(VALUES) * len(chosen))
     totals = [RuleTotals(L, sampler.n_levels) for _ in chosen]
+    buffers = [{} for _ in chosen]
     w = len(VALUES)
 
     def run():
         plan = chunk_plan(trials, max_trials, CHUNK_ROUNDS)
         for _, stream in chunks(seed, counts, plan, trips_per_unit=L):
             parts = []
-            for rule, table, tot in zip(chosen, tables, totals):
-                s = group_sample(rule, table, sampler, timing, L, k, stream)
+            for rule, table, tot, buf in zip(chosen, tables, totals, buffers):
+                s = group_sample(rule, table, sampler, timing, L, k, stream,
+                                 buffers=None if keep_sample else buf)
                 tot.add(s, keep_sample)
                 parts.append(s.values())
             moments.add(np.hstack(parts))

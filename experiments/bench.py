@@ -161,8 +161,10 @@ def rule_figures(building, group, P, n_rounds, bound, threads: int) -> dict:
             continue
         table = rule.table(building, group, [L], P)
 
+        buffers = {}                 # the output arrays lent from call to call, as compare does
+
         def run():
-            group_sample(rule, table, sampler, timing, L, L, stream)
+            group_sample(rule, table, sampler, timing, L, L, stream, buffers=buffers)
         with_numba_threads(1, run)
         # the rule and the random-number bound timed in turn, best of each, so that a
         # change in the machine's speed during the run moves both

@@ -190,6 +190,31 @@ def test_sectors_from_floor_counts_equals_sectors_one_by_one(bp, k, limit):
     assert np.array_equal(get_rule("sectors").allocate(o, d, k, limit, params), one_by_one)
 
 
+@settings(max_examples=100)
+@given(bp=batches(lobby_only=True), k=st.integers(1, 6), data=st.data())
+def test_fewest_stops_at_the_lobby_equals_the_rule_as_stated(bp, k, data):
+    """The lobby shortcut of `fewest-stops` (a bit mask of cars per floor) gives every
+    passenger the car that the rule as stated gives them (each passenger in arrival
+    order, every car weighed on new stops, load, rise), whatever the cars' rooms, loads
+    and the stops they are already due to make."""
+    from allocation.fewest_stops import fewest_stops_at_lobby, fewest_stops_in_order
+    building, pairs = bp
+    n_floors = building.floors
+    o = np.zeros(len(pairs), np.int64)
+    d = np.array([p[1] for p in pairs], dtype=np.int64).reshape(-1)
+    cars = empty_cars(k, 0)
+    for c in range(k):
+        cars[c]["room"] = data.draw(st.integers(0, 12))
+        cars[c]["load"] = data.draw(st.integers(0, 5))
+        cars[c]["up_stops"] = data.draw(st.integers(0, (1 << (n_floors + 1)) - 1))
+        cars[c]["down_stops"] = data.draw(st.integers(0, (1 << (n_floors + 1)) - 1))
+    stated = np.full(len(pairs), -7, np.int64)
+    shortcut = np.full(len(pairs), -7, np.int64)
+    fewest_stops_in_order(o, d, cars, np.zeros(scratch_size(len(pairs), k), np.int64), stated)
+    fewest_stops_at_lobby(d, cars, np.zeros(scratch_size(len(pairs), k), np.int64), shortcut)
+    assert np.array_equal(stated, shortcut)
+
+
 @settings(max_examples=80)
 @given(bp=batches(lobby_only=True), k=st.integers(1, 6))
 def test_sorted_from_floor_counts_equals_sorting_then_cutting(bp, k):

@@ -254,12 +254,22 @@ def sweep_charts(table, out_dir, building_name: str) -> list[Path]:
                      "hc_gain_pct_vs_random", "hc_gain_ci95_pct", "rtt_gain_pct_vs_random",
                      "rtt_gain_ci95_pct"])
     groups = _groups(table)
-    paths = _rtt_interval_chart(groups, out_dir, building_name)
-    paths += _capacity_chart(groups, out_dir, building_name)
-    paths += _gain_chart(groups, out_dir, building_name)
+    basis = (f"{_passenger_model(table)} passenger counts; destination rules with every car "
+             f"open to allocation (the ideal bound)")
+    paths = _rtt_interval_chart(groups, out_dir, building_name, basis)
+    paths += _capacity_chart(groups, out_dir, building_name, basis)
+    paths += _gain_chart(groups, out_dir, building_name, basis)
     if table["cars_open"].nunique() > 1:
         paths += cars_open_chart(table, out_dir, building_name)
     return paths
+
+
+def _passenger_model(table) -> str:
+    """The passenger model(s) of a sweep table, in words ("Poisson", "fixed")."""
+    if "passenger_model" not in table.columns:
+        return "Poisson"
+    names = {"poisson": "Poisson", "fixed": "fixed"}
+    return " and ".join(names.get(m, str(m)) for m in sorted(table["passenger_model"].unique()))
 
 
 def _panels_vs_demand(groups, panels, title: str, stem: str, out_dir, *,
@@ -292,14 +302,15 @@ def _panels_vs_demand(groups, panels, title: str, stem: str, out_dir, *,
         return _save(fig, out_dir, stem)
 
 
-def _rtt_interval_chart(groups, out_dir, name) -> list[Path]:
+def _rtt_interval_chart(groups, out_dir, name, basis: str = "") -> list[Path]:
     panels = [("round_trip_time_s", lambda r: r["ci95_s"], "Round-trip time", "round-trip time [s]"),
               ("interval_s", lambda r: r["ci95_s"] / r["cars"], "Interval", "interval [s]")]
     return _panels_vs_demand(groups, panels, f"{name}: round-trip time and interval against "
-                             f"demand (bands: 95 % intervals)", "rtt_interval_vs_demand", out_dir)
+                             f"demand (bands: 95 % intervals)\n{basis}", "rtt_interval_vs_demand",
+                             out_dir)
 
 
-def _capacity_chart(groups, out_dir, name) -> list[Path]:
+def _capacity_chart(groups, out_dir, name, basis: str = "") -> list[Path]:
     n = len(groups)
     cols = min(n, 3)
     rows_n = math.ceil(n / cols)
@@ -332,17 +343,18 @@ def _capacity_chart(groups, out_dir, name) -> list[Path]:
             ax.legend(loc="upper left", fontsize="small")
         for j in range(n, rows_n * cols):
             axes[j // cols][j % cols].set_visible(False)
-        _suptitle(fig, f"{name}:\nhandling capacity at design load against demand")
+        _suptitle(fig, f"{name}:\nhandling capacity at design load against demand\n{basis}")
         return _save(fig, out_dir, "capacity_vs_demand")
 
 
-def _gain_chart(groups, out_dir, name) -> list[Path]:
+def _gain_chart(groups, out_dir, name, basis: str = "") -> list[Path]:
     panels = [("hc_gain_pct_vs_random", lambda r: r["hc_gain_ci95_pct"],
                "Handling-capacity gain", "handling-capacity gain vs random [%]"),
               ("rtt_gain_pct_vs_random", lambda r: r["rtt_gain_ci95_pct"],
                "Round-trip-time reduction", "round-trip-time reduction vs random [%]")]
     return _panels_vs_demand(groups, panels, f"{name}: grouping gain against demand, same "
-                             f"passengers (bands: paired 95 % intervals)", "gain_vs_demand",
+                             f"passengers (bands: paired 95 % intervals)\n{basis}",
+                             "gain_vs_demand",
                              out_dir, skip_baseline=True)
 
 
@@ -403,7 +415,8 @@ def cars_open_chart(table, out_dir, building_name: str) -> list[Path]:
             axes[j // cols][j % cols].set_visible(False)
         _suptitle(fig, f"{building_name}: handling-capacity gain against cars open to "
                      f"allocation\nat demand {demand:g} % of population per 5 min{highest} "
-                     f"(bands: paired 95 % intervals)", fontsize="medium")
+                     f"(bands: paired 95 % intervals; {_passenger_model(table)} passenger "
+                     f"counts)", fontsize="medium")
         _legend_below(fig, axes)
         return _save(fig, out_dir, "gain_vs_cars_open")
 
@@ -591,7 +604,8 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
         ax0.set_yticklabels(["lobby"] + [str(f) for f in range(1, floors + 1)])
         ax0.set_ylim(-0.6, floors + 0.6)
         ax0.set_ylabel("destination floor [floor]")
-        _suptitle(fig, f"{name}: one up-peak batch of {n} passengers for {cars} cars, "
+        _suptitle(fig, f"{name}: one up-peak round of {n} passengers for {cars} cars (fixed "
+                     f"counts per car, every car open), "
                      f"allocated by {' and by '.join(repr(r) for r, _, _ in drawn)} "
                      f"(seed {seed})")
         from matplotlib.lines import Line2D

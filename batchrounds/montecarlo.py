@@ -42,7 +42,7 @@ from roundtrip.classical import average_waiting_time_s, traffic_mix_name
 from roundtrip.montecarlo import (Z95, Estimate, PassengerSampler, check_passengers,
                                   check_run_options, chunk_plan, meets_target, with_threads)
 from roundtrip.schedule import TripStream, TripTiming, trip_timing
-from roundtrip.stream import CHAIN_ROUNDS, CHUNK_ROUNDS, chunks, count_table
+from roundtrip.stream import CHAIN_ROUNDS, CHUNK_ROUNDS, PART_ROUNDS, count_table, run_stream
 from roundtrip.threads import run_chains
 
 from . import _kernel as G
@@ -296,16 +296,18 @@ def sub_batch_sizes(cars: int, cars_open: int) -> list[int]:
 
 def group_sample(rule: Rule, table: np.ndarray, sampler: PassengerSampler, timing: TripTiming,
                  cars: int, cars_open: int, stream: TripStream,
-                 chain_rounds: int = CHAIN_ROUNDS, buffers: dict | None = None) -> GroupSample:
+                 chain_rounds: int = CHAIN_ROUNDS, buffers: dict | None = None,
+                 threaded: bool = True) -> GroupSample:
     """One rule on the rounds of ``stream`` (round t's car c is trip t x cars + c): the one
     helper through which every caller runs the group kernel. ``buffers`` (a dict the
-    caller keeps) lends the output arrays from one chunk to the next."""
+    caller keeps) lends the output arrays from one call to the next; ``threaded``: the
+    chains split between the worker threads (off inside a worker)."""
     n = (stream.offsets.size - 1) // cars
     chains = max(1, -(-n // chain_rounds))
     out = _out(buffers, n, cars, chains, sampler.n_levels)
     run_chains(G.group_trips, chains, rule.compiled, stream, sampler.alias,
                G.GroupLayout(int(cars), int(cars_open), int(chain_rounds)), timing, table,
-               sampler.lobby_origins_only, out)
+               sampler.lobby_origins_only, out, threaded=threaded)
     if out.unallocated.any():
         raise RuntimeError(f"rule {rule.name!r} gave {int(out.unallocated.sum())} passenger(s) no "
                            f"car though the cars had room: a defect of the rule")
@@ -376,24 +378,24 @@ def compare_rules(building: Building, group: LiftGroup, rules, passengers_per_ca
     L = group.cars
     moments = RunningMoments(len(VALUES) * len(chosen))
     totals = [RuleTotals(L, sampler.n_levels) for _ in chosen]
-    buffers = [{} for _ in chosen]
     w = len(VALUES)
 
-    def run():
-        plan = chunk_plan(trials, max_trials, CHUNK_ROUNDS)
-        for _, stream in chunks(seed, counts, plan, trips_per_unit=L):
-            parts = []
-            for rule, table, tot, buf in zip(chosen, tables, totals, buffers):
-                s = group_sample(rule, table, sampler, timing, L, k, stream,
-                                 buffers=None if keep_sample else buf)
-                tot.add(s, keep_sample)
-                parts.append(s.values())
-            moments.add(np.hstack(parts))
-            if trials is None and meets_target(
-                    [moments.estimate(w * i) for i in range(len(chosen))], ci_target_pct):
-                break
+    def work(stream):
+        """Every rule on one part's rounds (common random numbers)."""
+        return [group_sample(rule, table, sampler, timing, L, k, stream, threaded=False)
+                for rule, table in zip(chosen, tables)]
 
-    with_threads(threads, run)
+    def merge(results) -> bool:
+        for samples in results:
+            for s, tot in zip(samples, totals):
+                tot.add(s, keep_sample)
+            moments.add(np.hstack([s.values() for s in samples]))
+        return trials is None and meets_target(
+            [moments.estimate(w * i) for i in range(len(chosen))], ci_target_pct)
+
+    with_threads(threads, lambda: run_stream(seed, counts, chunk_plan(trials, max_trials,
+                                                                      CHUNK_ROUNDS),
+                                             PART_ROUNDS, work, merge, trips_per_unit=L))
     results = tuple(RuleResult(name, i, tot) for i, (name, tot) in enumerate(zip(names, totals)))
     return Comparison(building.name, L, int(k), group.rated_load_persons,
                       group.design_load_persons, building.total_population,

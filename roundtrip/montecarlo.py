@@ -39,8 +39,8 @@ from .classical import (average_waiting_time_s, demand_calculation, design_passe
 from .passengers import AliasTable, od_alias_table, od_matrix, passenger_counts
 from .schedule import TripOut, TripStream, TripTiming, trip_timing
 from .threads import run_chains
-from .stream import (CHAIN_TRIPS, CHUNK_TRIPS, adaptive_sizes, chunk_sizes, chunks,
-                     count_table)
+from .stream import (CHAIN_TRIPS, CHUNK_TRIPS, PART_TRIPS, adaptive_sizes, chunk_sizes,
+                     count_table, run_stream)
 
 Z95 = 1.959963984540054   # two-sided 95 % normal quantile
 
@@ -193,16 +193,18 @@ def time_trips(building: Building, group: LiftGroup, orig, dest, offsets,
 
 
 def chain_sums(sampler: PassengerSampler, timing: TripTiming, stream: TripStream,
-               chain_trips: int = CHAIN_TRIPS, sample: TripOut | None = None) -> ChainSums:
-    """The chain kernel on one chunk of the stream: the one helper through which every
-    caller runs it. With ``sample`` (a :class:`TripOut` as long as the chunk) each
-    trip's own figures are written there too."""
+               chain_trips: int = CHAIN_TRIPS, sample: TripOut | None = None,
+               threaded: bool = True) -> ChainSums:
+    """The chain kernel on one part of the stream: the one helper through which every
+    caller runs it. With ``sample`` (a :class:`TripOut` as long as the part) each
+    trip's own figures are written there too; ``threaded``: its chains split between
+    the worker threads (off inside a worker)."""
     n = stream.offsets.size - 1
     sums = ChainSums.empty(max(1, -(-n // chain_trips)), sampler.n_levels)
     keep = sample is not None
     out = sample if keep else _NO_SAMPLE
     run_chains(chain_kernel, sums.trips.size, stream, sampler.alias, timing, int(chain_trips),
-               sampler.lobby_origins_only, sums, keep, out)
+               sampler.lobby_origins_only, sums, keep, out, threaded=threaded)
     return sums
 
 
@@ -417,16 +419,20 @@ def simulate_trips(building: Building, group: LiftGroup, passengers: float, *,
     sums = TripSums(sampler.n_levels)
     kept = []
 
-    def run():
-        for units, stream in chunks(seed, counts, chunk_plan(trials, max_trials, CHUNK_TRIPS)):
-            sample = TripOut.empty(units) if keep_sample else None
-            sums.add(chain_sums(sampler, timing, stream, CHAIN_TRIPS, sample))
+    def work(stream):
+        sample = TripOut.empty(stream.offsets.size - 1) if keep_sample else None
+        return chain_sums(sampler, timing, stream, CHAIN_TRIPS, sample, threaded=False), sample
+
+    def merge(results) -> bool:
+        for part, sample in results:
+            sums.add(part)
             if keep_sample:
                 kept.append(sample)
-            if trials is None and meets_target([sums.rtt()], ci_target_pct):
-                break
+        return trials is None and meets_target([sums.rtt()], ci_target_pct)
 
-    with_threads(threads, run)
+    with_threads(threads, lambda: run_stream(seed, counts, chunk_plan(trials, max_trials,
+                                                                      CHUNK_TRIPS),
+                                             PART_TRIPS, work, merge))
     sample = None
     if keep_sample:
         sample = TripSample(np.concatenate([s.rtt_s for s in kept]),

@@ -20,7 +20,8 @@ MIN_PARALLEL_CHAINS = 4
 _POOL = None
 
 
-def _pool():
+def pool():
+    """The worker threads (numba's largest thread count of them)."""
     global _POOL
     if _POOL is None:
         import numba
@@ -35,15 +36,16 @@ def thread_count() -> int:
     return max(1, numba.get_num_threads())
 
 
-def run_chains(kernel, n_chains: int, *args) -> None:
-    """``kernel(*args, first_chain, last_chain)`` over chains 0 ... n_chains - 1."""
+def run_chains(kernel, n_chains: int, *args, threaded: bool = True) -> None:
+    """``kernel(*args, first_chain, last_chain)`` over chains 0 ... n_chains - 1 (in the
+    calling thread when not ``threaded``: a worker of the pool itself)."""
     threads = thread_count()
-    if threads == 1 or n_chains < MIN_PARALLEL_CHAINS:
+    if not threaded or threads == 1 or n_chains < MIN_PARALLEL_CHAINS:
         kernel(*args, 0, n_chains)
         return
     pieces = min(n_chains, 2 * threads)
     bounds = [n_chains * i // pieces for i in range(pieces + 1)]
-    futures = [_pool().submit(kernel, *args, a, b) for a, b in zip(bounds[:-1], bounds[1:])
+    futures = [pool().submit(kernel, *args, a, b) for a, b in zip(bounds[:-1], bounds[1:])
                if b > a]
     for f in futures:
         f.result()

@@ -405,3 +405,22 @@ def test_simulate_command_json_keys_and_errors(tmp_path, capsys):
         with pytest.raises(SystemExit) as exit_:          # argparse: usage and exit 2
             main(["simulate", str(f), *bad])
         assert exit_.value.code == 2
+
+
+def test_streamed_estimates_do_not_depend_on_threads_or_chunk_prefetch():
+    """The stream is defined chunk by chunk (roundtrip/stream.py): the demand fixed point
+    and a comparison of rules give the very same numbers on one and on two threads,
+    and a run of exactly N trips is the chunks of that plan, in order."""
+    from batchrounds.montecarlo import compare_rules
+    from roundtrip.stream import CHUNK_TRIPS, chunk_sizes
+    b = CLASSICAL_BUILDINGS[1]
+    t = Traffic(9.0, 0.7, 0.2, 0.1)
+    one = simulate_demand(b, SLOW_GROUP, t, seed=5, threads=1).to_dict()
+    two = simulate_demand(b, SLOW_GROUP, t, seed=5, threads=2).to_dict()
+    assert one == two
+    a = compare_rules(b, SLOW_GROUP, ["sorted"], 8.0, traffic=t, trials=5000, seed=2, threads=1)
+    c = compare_rules(b, SLOW_GROUP, ["sorted"], 8.0, traffic=t, trials=5000, seed=2, threads=2)
+    assert a.to_dict() == c.to_dict()
+    assert chunk_sizes(2 * CHUNK_TRIPS + 5, CHUNK_TRIPS) == [CHUNK_TRIPS, CHUNK_TRIPS, 5]
+    r = simulate_trips(b, SLOW_GROUP, 8.0, traffic=t, trials=CHUNK_TRIPS + 7, seed=3)
+    assert r.trials == CHUNK_TRIPS + 7

@@ -13,8 +13,8 @@ MAX_BATCH = 10
 @register(
     "best",
     summary="A bound, not a control: every way of sharing a tiny batch between the cars, "
-            "each car taking at most its equal share, is tried and the one with the least "
-            "mean round-trip time is kept. No rule can do better on the same passengers.",
+            "each car taking at most its room, is tried and the one with the least mean "
+            "round-trip time is kept. No rule can do better on the same passengers.",
     source="Exhaustive enumeration (a bound for tests and experiments); identical cars, so "
            "allocations that differ only by car numbering are tried once.",
     max_batch=MAX_BATCH, allocates=True)

@@ -19,7 +19,8 @@ cars : the car view (:data:`CAR_VIEW`), one record per car open to this batch,
     leaves the lobby) and ``opens_in_s`` (seconds until its doors are open at
     the lobby; 0 or less when they are open now). The round-trip Monte Carlo
     gives empty cars at the lobby (load 0, no stops, times 0) whose room is the
-    car limit; the peak simulation gives the cars' real state.
+    number of passengers conventional control would give the car (their sum is
+    the batch); the peak simulation gives the cars' real state.
 timing : :class:`roundtrip.schedule.TripTiming`, what times a trip (flight
     table, stop overhead, transfer times, rated load)
 table : int64 2-d array, the rule's own table made once per run by its
@@ -100,9 +101,9 @@ def scratch_size(batch: int, cars_open: int) -> int:
 
 
 def car_limit(batch: int, cars_open: int, rated_load_persons: int) -> int:
-    """The per-car limit the round-trip Monte Carlo gives a rule:
-    min(rated load, ceil(batch / cars open)), so that every rule is compared at the
-    same car load."""
+    """An equal per-car limit for a batch: min(rated load, ceil(batch / cars open)) (for
+    plain calls of a rule on one batch, in tests and examples; the round-trip Monte
+    Carlo gives each car its own room, see :mod:`batchrounds._kernel`)."""
     return min(rated_load_persons, -(-batch // cars_open))
 
 

@@ -1,6 +1,10 @@
 """`fewest-stops`: a capacity-aware greedy destination allocation."""
 from __future__ import annotations
 
+import numpy as np
+from numba import njit
+
+from .ordering import all_at_lobby
 from .registry import register
 
 
@@ -8,8 +12,8 @@ from .registry import register
     "fewest-stops",
     summary="Each passenger, in order of arrival, is given the car to which they add the "
             "fewest new stops; on a tie, the lighter car, then the car whose highest floor "
-            "rises least. No car takes more than its equal share of the batch, so all "
-            "leave with similar loads.",
+            "rises least. No car takes more than its room (its share of the batch), so all "
+            "leave with the loads the engine gives them.",
     source="Greedy stop-minimising hall-call allocation, the simplest destination-control "
            "heuristic (common practice).",
     default=True, peak=True)
@@ -25,6 +29,15 @@ def allocate_fewest_stops(origins, destinations, cars, timing, table, scratch, c
     car's reversal floor rises the whole way), so the cars fill one after another
     in arrival order and the rule collapses into conventional control.
     """
+    if cars.shape[0] <= 62 and all_at_lobby(origins):
+        fewest_stops_at_lobby(destinations, cars, scratch, car_out)
+        return
+    fewest_stops_in_order(origins, destinations, cars, scratch, car_out)
+
+
+@njit(cache=True)
+def fewest_stops_in_order(origins, destinations, cars, scratch, car_out):
+    """The rule as stated: each passenger in arrival order, every car with room weighed."""
     n = origins.shape[0]
     k = cars.shape[0]
     # car c's up and down stop masks (bit f for floor f), highest floor, load (committed
@@ -69,3 +82,69 @@ def allocate_fewest_stops(origins, destinations, cars, timing, table, scratch, c
             scratch[TOP + best] = max(scratch[TOP + best], max(o, d))
             scratch[LOAD + best] += 1
             scratch[LEFT + best] -= 1
+
+
+@njit(cache=True, inline="always")
+def fewest_stops_at_lobby(destinations, cars, scratch, car_out):
+    """The same allocation as :func:`fewest_stops_in_order` for a batch boarding at the
+    lobby (and at most 62 cars open).
+
+    With every origin at the lobby a passenger adds no stop to a car that already
+    stops at their floor and one stop to any other, and a car already stopping there
+    rises no higher. The rule's order of preference, (new stops, load, rise, car
+    number), is then one integer per car, and each passenger takes the car of the
+    least (the cars weighed without a branch). Most passengers go to a floor that
+    exactly one car with room already serves, and no other car can beat it (it adds
+    no stop): ``scratch[f]`` keeps that car for floor f (-1 when none or several), so
+    they are placed at once.
+    """
+    n = destinations.shape[0]
+    k = cars.shape[0]
+    ONLY, UP, LOAD, LEFT, TOP = 0, 130, 130 + k, 130 + 2 * k, 130 + 3 * k
+    for f in range(65):
+        scratch[ONLY + f] = -1
+    for c in range(k):
+        up = np.int64(cars[c]["up_stops"])
+        both = up | np.int64(cars[c]["down_stops"])
+        top = 0
+        f = 0
+        while both != 0:                       # the highest floor it is due to stop at
+            if both & 1:
+                top = f
+            both >>= 1
+            f += 1
+        scratch[UP + c] = up
+        scratch[TOP + c] = top
+        scratch[LOAD + c] = cars[c]["load"]
+        scratch[LEFT + c] = cars[c]["room"]
+    never = np.int64(1) << 62
+    for i in range(n):
+        d = destinations[i]
+        best = scratch[ONLY + d]
+        if best < 0:
+            key = never
+            served = 0
+            for c in range(k):
+                stops_there = (scratch[UP + c] >> d) & 1
+                rise = max(0, d - scratch[TOP + c]) * (1 - stops_there)
+                kc = ((1 - stops_there) << 40) | (scratch[LOAD + c] << 12) | (rise << 6) | c
+                open_ = scratch[LEFT + c] > 0
+                key = min(key, kc if open_ else never)
+                served += stops_there & open_
+            if key == never:
+                car_out[i] = -1
+                continue
+            best = key & 63
+            if ((key >> 40) & 1) == 1:             # a new stop at d for that car
+                scratch[UP + best] |= np.int64(1) << d
+                scratch[TOP + best] = max(scratch[TOP + best], d)
+                served += 1
+            if served == 1:                         # now the one car with room at d
+                scratch[ONLY + d] = best
+        car_out[i] = best
+        scratch[LOAD + best] += 1
+        scratch[LEFT + best] -= 1
+        if scratch[LEFT + best] == 0:               # full: its floors look again
+            for f in range(scratch[TOP + best] + 1):
+                if scratch[ONLY + f] == best:
+                    scratch[ONLY + f] = -1

@@ -121,11 +121,19 @@ def capped_sizes(n, cars, work, base):
     differ by at most one, as :func:`equal_cut`). A car given more than its
     ``room`` keeps its room, and what it gives up is cut equally again among the
     cars that still have room, until everyone is placed or every car is full.
-    With every room at least ceil(n / k) this is :func:`equal_cut` exactly.
+    With every room at least ceil(n / k) this is :func:`equal_cut` exactly; when the
+    rooms add up to n or less every car takes its room.
     Writes car c's size into ``work[base + c]``; returns the passengers placed (n, or
     the total room).
     """
     k = cars.shape[0]
+    total_room = 0
+    for c in range(k):
+        total_room += cars[c]["room"]
+    if total_room <= n:                   # every car full: each takes its room
+        for c in range(k):
+            work[base + c] = cars[c]["room"]
+        return total_room
     excess = 0
     below = 0
     for c in range(k):

@@ -184,30 +184,40 @@ def _compiled(signature, function: Callable, allocates: bool):
     return cfunc(signature, cache=True, **WITHOUT_RUNTIME)(function)
 
 
+def _batch_driver(batches, timing, table, scratch, car_out):
+    """Many batches in one call: the rule (the global ``_rule_body`` of each driver's own
+    namespace, see :func:`_compile_batch_rule`) on each batch in turn."""
+    offsets = batches.offsets
+    for b in range(offsets.shape[0] - 1):
+        s = offsets[b]
+        e = offsets[b + 1]
+        _rule_body(batches.origins[s:e], batches.destinations[s:e],  # noqa: F821
+                   batches.cars[batches.car_start[b]:batches.car_stop[b]], timing, table, scratch,
+                   car_out[s:e])
+
+
 def _compile_batch_rule(name: str, function: Callable, allocates: bool):
+    """The rule's batch driver, compiled (or plain under NUMBA_DISABLE_JIT).
+
+    Each driver is the function :func:`_batch_driver` with its own globals, in which
+    ``_rule_body`` is the rule: not a closure, so that numba's disk cache finds it again
+    in the next process (a closure over a compiled function gets a new cache key in
+    every process). Its name carries a digest of the rule's code: one cache entry per
+    rule and per version of its code.
+    """
+    import types
+
     import numba
     from numba import njit
 
     from .contract import BATCH_DRIVER_SIGNATURE
-    if numba.config.DISABLE_JIT:
-        inner = function
-    else:
-        inner = njit(inline="always", cache=True)(function)
-
-    def driver(batches, timing, table, scratch, car_out):
-        offsets = batches.offsets
-        for b in range(offsets.shape[0] - 1):
-            s = offsets[b]
-            e = offsets[b + 1]
-            inner(batches.origins[s:e], batches.destinations[s:e],
-                  batches.cars[batches.car_start[b]:batches.car_stop[b]], timing, table, scratch,
-                  car_out[s:e])
-
+    inner = function if numba.config.DISABLE_JIT else njit(inline="always", cache=True)(function)
+    label = f"batch_rule_{re.sub(r'[^0-9a-zA-Z]', '_', name)}_{_digest(function)}"
+    driver = types.FunctionType(_batch_driver.__code__,
+                                {**_batch_driver.__globals__, "_rule_body": inner}, label)
+    driver.__qualname__ = label
     if numba.config.DISABLE_JIT:
         return driver
-    # one cache entry per rule and per version of its code
-    driver.__name__ = driver.__qualname__ = (
-        f"batch_rule_{re.sub(r'[^0-9a-zA-Z]', '_', name)}_{_digest(function)}")
     return _compiled(BATCH_DRIVER_SIGNATURE, driver, allocates)
 
 

@@ -39,6 +39,24 @@ def rules_markdown() -> str:
               "| policy | what it does | source or rationale | flags |", "|---|---|---|---|"]
     for policy in POLICIES.values():
         lines.append(f"| `{policy.name}` | {policy.summary} | {policy.source} | {_flags(policy)} |")
+    lines += ["", "## Cars open to allocation", "",
+              "A batch rule shares each allocation between the cars open to it. In the "
+              "round-trip Monte Carlo a round's cars are split into sub-batches of k cars open "
+              "(`--cars-open K`); with every car open the figure is the *ideal bound*: every "
+              "passenger of a round known at once and shared between cars that in fact leave "
+              "one interval apart, which no real destination control reaches.", "",
+              "The *realisable* value, the default of `liftsort size`, is **2**. In up-peak a "
+              "destination system allocates a passenger when they register at the lobby, and "
+              "the only cars it can still give them are those that will load at the lobby "
+              "before the passenger would give up: the car loading there now and the next one "
+              "to arrive. With intervals of 20 to 40 s and a loading time of 10 to 20 s "
+              "(common practice for office groups), a third car is an interval or more away "
+              "and is not open to the same registrations; one car open is conventional control. "
+              "The peak simulation (`liftsort peak`) finds the cars open from the cars' state "
+              "instead of assuming it.", "",
+              "Every rule carries, car by car, the passengers conventional control would give "
+              "that car (its *room*), in each direction apart when a batch holds both, so all "
+              "rules are compared at the same car load."]
     return "\n".join(lines) + "\n"
 
 

@@ -256,12 +256,22 @@ def sweep_charts(table, out_dir, building_name: str) -> list[Path]:
                      "hc_gain_pct_vs_random", "hc_gain_ci95_pct", "rtt_gain_pct_vs_random",
                      "rtt_gain_ci95_pct"])
     groups = _groups(table)
-    paths = _rtt_interval_chart(groups, out_dir, building_name)
-    paths += _capacity_chart(groups, out_dir, building_name)
-    paths += _gain_chart(groups, out_dir, building_name)
+    basis = (f"{_passenger_model(table)} passenger counts; destination rules with every car "
+             f"open to allocation (the ideal bound)")
+    paths = _rtt_interval_chart(groups, out_dir, building_name, basis)
+    paths += _capacity_chart(groups, out_dir, building_name, basis)
+    paths += _gain_chart(groups, out_dir, building_name, basis)
     if table["cars_open"].nunique() > 1:
         paths += cars_open_chart(table, out_dir, building_name)
     return paths
+
+
+def _passenger_model(table) -> str:
+    """The passenger model(s) of a sweep table, in words ("Poisson", "fixed")."""
+    if "passenger_model" not in table.columns:
+        return "Poisson"
+    names = {"poisson": "Poisson", "fixed": "fixed"}
+    return " and ".join(names.get(m, str(m)) for m in sorted(table["passenger_model"].unique()))
 
 
 def _panels_vs_demand(groups, panels, title: str, stem: str, out_dir, *,
@@ -294,14 +304,15 @@ def _panels_vs_demand(groups, panels, title: str, stem: str, out_dir, *,
         return _save(fig, out_dir, stem)
 
 
-def _rtt_interval_chart(groups, out_dir, name) -> list[Path]:
+def _rtt_interval_chart(groups, out_dir, name, basis: str = "") -> list[Path]:
     panels = [("round_trip_time_s", lambda r: r["ci95_s"], "Round-trip time", "round-trip time [s]"),
               ("interval_s", lambda r: r["ci95_s"] / r["cars"], "Interval", "interval [s]")]
     return _panels_vs_demand(groups, panels, f"{name}: round-trip time and interval against "
-                             f"demand (bands: 95 % intervals)", "rtt_interval_vs_demand", out_dir)
+                             f"demand (bands: 95 % intervals)\n{basis}", "rtt_interval_vs_demand",
+                             out_dir)
 
 
-def _capacity_chart(groups, out_dir, name) -> list[Path]:
+def _capacity_chart(groups, out_dir, name, basis: str = "") -> list[Path]:
     n = len(groups)
     cols = min(n, 3)
     rows_n = math.ceil(n / cols)
@@ -334,17 +345,18 @@ def _capacity_chart(groups, out_dir, name) -> list[Path]:
             ax.legend(loc="upper left", fontsize="small")
         for j in range(n, rows_n * cols):
             axes[j // cols][j % cols].set_visible(False)
-        _suptitle(fig, f"{name}:\nhandling capacity at design load against demand")
+        _suptitle(fig, f"{name}:\nhandling capacity at design load against demand\n{basis}")
         return _save(fig, out_dir, "capacity_vs_demand")
 
 
-def _gain_chart(groups, out_dir, name) -> list[Path]:
+def _gain_chart(groups, out_dir, name, basis: str = "") -> list[Path]:
     panels = [("hc_gain_pct_vs_random", lambda r: r["hc_gain_ci95_pct"],
                "Handling-capacity gain", "handling-capacity gain vs random [%]"),
               ("rtt_gain_pct_vs_random", lambda r: r["rtt_gain_ci95_pct"],
                "Round-trip-time reduction", "round-trip-time reduction vs random [%]")]
     return _panels_vs_demand(groups, panels, f"{name}: grouping gain against demand, same "
-                             f"passengers (bands: paired 95 % intervals)", "gain_vs_demand",
+                             f"passengers (bands: paired 95 % intervals)\n{basis}",
+                             "gain_vs_demand",
                              out_dir, skip_baseline=True)
 
 
@@ -405,7 +417,8 @@ def cars_open_chart(table, out_dir, building_name: str) -> list[Path]:
             axes[j // cols][j % cols].set_visible(False)
         _suptitle(fig, f"{building_name}: handling-capacity gain against cars open to "
                      f"allocation\nat demand {demand:g} % of population per 5 min{highest} "
-                     f"(bands: paired 95 % intervals)", fontsize="medium")
+                     f"(bands: paired 95 % intervals; {_passenger_model(table)} passenger "
+                     f"counts)", fontsize="medium")
         _legend_below(fig, axes)
         return _save(fig, out_dir, "gain_vs_cars_open")
 
@@ -440,9 +453,8 @@ def distribution_charts(comparison, out_dir, building_name: str) -> list[Path]:
     results = list(comparison.results)
     if not results:
         raise ValueError("comparison: has no rule results; nothing to draw")
-    sub = (f"{comparison.passengers_per_car:.1f} passengers per car, "
-           f"{count_of(comparison.cars, 'car')}, "
-           f"{comparison.trials} batches")
+    sub = (f"{comparison.passengers_per_car:.1f} passengers per car ({comparison.passenger_model}), "
+           f"{count_of(comparison.cars, 'car')}, {comparison.trials} rounds")
     paths = _distribution(results, K.STOPS, "stops above the lobby per round trip [-]",
                           f"{building_name}: stops per round trip\n({sub})", out_dir,
                           "stops_distribution")
@@ -453,17 +465,20 @@ def distribution_charts(comparison, out_dir, building_name: str) -> list[Path]:
 
 
 def _distribution(results, column: int, xlabel: str, title: str, out_dir, stem) -> list[Path]:
-    values = {r.rule: np.asarray(r.sample.counts[:, :, column]).ravel() for r in results}
-    top = int(max(v.max() for v in values.values() if v.size)) if any(
-        v.size for v in values.values()) else 0
+    from roundtrip import schedule as K
+    hists = {r.rule: np.asarray(r.totals.stops_hist if column == K.STOPS
+                                else r.totals.highest_hist) for r in results}
+    used = [int(np.flatnonzero(h).max()) for h in hists.values() if h.any()]
+    top = max(used) if used else 0
     ks = np.arange(top + 1)
-    width = 0.8 / len(values)
+    width = 0.8 / len(hists)
     with _style():
         fig, axes = _figure(1, 1, max(7.0, 1.5 + 0.55 * (top + 1)), 4.6)
         ax = axes[0][0]
-        for i, (rule, v) in enumerate(values.items()):
-            prob = np.bincount(v, minlength=top + 1)[: top + 1] / max(v.size, 1)
-            mean = float(v.mean()) if v.size else float("nan")
+        for i, (rule, h) in enumerate(hists.items()):
+            total = max(int(h.sum()), 1)
+            prob = h[: top + 1] / total
+            mean = float(np.sum(np.arange(h.size) * h) / total) if h.any() else float("nan")
             ax.bar(ks - 0.4 + width * (i + 0.5), prob, width=width, color=rule_colour(rule),
                    edgecolor="white", linewidth=0.4, label=f"{rule} (mean {mean:.2f})",
                    hatch="//" if _is_baseline(rule) else None)
@@ -507,15 +522,17 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
 
     Notes
     -----
-    The batch is drawn once by :class:`roundtrip.montecarlo.PassengerSampler`
-    and given to every rule's plain function with the engine's per-car limit
-    (:func:`allocation.registry.car_limit`). Each car's passengers are timed
+    The round is drawn once by :class:`roundtrip.montecarlo.PassengerSampler`
+    (each car's passengers over its interval) and given to every rule's plain
+    function with each car's room, the passengers conventional control gives it
+    (as in the round-trip Monte Carlo). Each car's passengers are timed
     by :func:`roundtrip.montecarlo.time_trips` (the trip model of
     ``docs/trip_model.md``); its round-trip time [s] and stops are in the
     car's axis label. A dot is a passenger at their destination floor (dots
     at one floor are spread side by side); a grey bar marks a stop.
     """
-    from allocation.registry import car_limit, get_rule
+    from allocation.contract import empty_cars
+    from allocation.registry import get_rule
     from roundtrip.montecarlo import PassengerSampler, time_trips
     from roundtrip.schedule import STOPS, trip_timing
 
@@ -528,19 +545,23 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
     chosen = [get_rule(r) for r in rules]
     if not chosen:
         raise ValueError("rules = (): give at least one rule")
-    orig, dest, offsets = PassengerSampler(building).draw(np.random.default_rng(seed), cars * p, 1,
+    # one round: each car's passengers arrive over its interval (a fixed count, a real P
+    # mixing the two nearest integers), and each car takes as many as conventional
+    # control would give it, as in the round-trip Monte Carlo
+    orig, dest, offsets = PassengerSampler(building).draw(np.random.default_rng(seed), p, cars,
                                                           poisson=False)
-    n = int(offsets[1])
+    n = int(offsets[-1])
     for rule in chosen:
         if rule.max_batch is not None and n > rule.max_batch:
             raise ValueError(f"rule = {rule.name!r}: takes batches of at most {rule.max_batch} "
                              f"passengers; this batch has {n}")
-    limit = car_limit(n, cars, group.rated_load_persons)
+    view = empty_cars(cars, 0)
+    view["room"] = np.minimum(np.diff(offsets), group.rated_load_persons)
     timing = trip_timing(building, group)
     drawn = []
     for rule in chosen:
         params = rule.params(building, group, cars, p)
-        car_of = rule.allocate(orig, dest, cars, limit, params)
+        car_of = rule.allocate(orig, dest, cars, params=params, cars=view)
         per_car = []
         for c in range(cars):
             idx = np.flatnonzero(car_of == c)
@@ -585,8 +606,8 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
         ax0.set_yticklabels(["lobby"] + [str(f) for f in range(1, floors + 1)])
         ax0.set_ylim(-0.6, floors + 0.6)
         ax0.set_ylabel("destination floor [floor]")
-        _suptitle(fig, f"{name}: one up-peak batch of {count_of(n, 'passenger')} for "
-                     f"{count_of(cars, 'car')}, "
+        _suptitle(fig, f"{name}: one up-peak round of {count_of(n, 'passenger')} for "
+                     f"{count_of(cars, 'car')} (fixed counts per car, every car open), "
                      f"allocated by {' and by '.join(repr(r) for r, _, _ in drawn)} "
                      f"(seed {seed})")
         from matplotlib.lines import Line2D

@@ -9,7 +9,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from roundtrip.building import Scenario
-from roundtrip.classical import UppeakResult, demand_calculation, uppeak_calculation
+from roundtrip.classical import (ClassicalResult, demand_calculation, design_passengers,
+                                 round_trip_calculation)
 from roundtrip.inputfile import InputError
 
 from .limits import trial_cap
@@ -23,13 +24,43 @@ def require_traffic(scenario: Scenario) -> None:
                          scenario.source)
 
 
-def classical_result(scenario: Scenario, passengers: float | None, poisson: bool) -> UppeakResult:
-    """Given-load mode when ``passengers`` is set, otherwise demand mode."""
+def most_passengers(scenario: Scenario) -> float:
+    """The largest mean load per trip a car can carry: the rated load on the busiest
+    stretch of the trip (the rated load itself in up-peak)."""
+    g = scenario.group
+    return design_passengers(scenario.building, g, scenario.traffic) / g.capacity_factor
+
+
+def check_passengers_option(scenario: Scenario, passengers: float | None) -> None:
+    """--passengers above what a car can carry is refused with a clear message."""
+    if passengers is None:
+        return
+    top = most_passengers(scenario)
+    rated = scenario.group.rated_load_persons
+    if passengers > top * (1.0 + 1e-12):
+        where = ("the rated load (group.rated_load_persons)" if abs(top - rated) < 1e-9 else
+                 f"the load at which the busiest stretch of the trip carries the rated load of "
+                 f"{rated} persons (group.rated_load_persons) for this traffic mix")
+        raise InputError([f"--passengers {passengers:g}: must be at most {top:.4g} persons per "
+                          f"trip, {where}; no car carries more on average."], scenario.source)
+
+
+def classical_result(scenario: Scenario, passengers: float | None, poisson: bool) -> ClassicalResult:
+    """Given-load mode when ``passengers`` is set, otherwise demand mode; any traffic mix
+    (the up-peak formula, or the general analysis)."""
     if passengers is not None:
-        return uppeak_calculation(scenario.building, scenario.group, passengers, poisson,
-                                  traffic=scenario.traffic)
+        check_passengers_option(scenario, passengers)
+        return round_trip_calculation(scenario.building, scenario.group, passengers, poisson,
+                                      traffic=scenario.traffic)
     require_traffic(scenario)
     return demand_calculation(scenario.building, scenario.group, scenario.traffic, poisson)
+
+
+def classical_at(scenario: Scenario, passengers: float, poisson: bool,
+                 saturated: bool | None = None) -> ClassicalResult:
+    """The classical figures at a load a Monte Carlo run chose (its saturation kept)."""
+    return round_trip_calculation(scenario.building, scenario.group, passengers, poisson,
+                                  traffic=scenario.traffic, saturated=saturated)
 
 
 def monte_carlo_result(scenario: Scenario, passengers: float | None, *, poisson: bool,
@@ -41,6 +72,7 @@ def monte_carlo_result(scenario: Scenario, passengers: float | None, *, poisson:
     run = dict(poisson=poisson, trials=trials, ci_target_pct=ci_target_pct,
                max_trials=trial_cap(max_trials, passengers_per_car=most), seed=seed,
                threads=threads)
+    check_passengers_option(scenario, passengers)
     try:
         if passengers is not None:
             return simulate_trips(scenario.building, scenario.group, passengers,
@@ -86,6 +118,7 @@ def comparison_run(scenario: Scenario, rules, passengers: float | None, *, cars_
     """Allocation rules on common batches at ``passengers`` per car, or at the demand."""
     from batchrounds.montecarlo import compare_rules
     saturated = None
+    check_passengers_option(scenario, passengers)
     try:
         if passengers is None:
             passengers, saturated = demand_passengers_per_car(

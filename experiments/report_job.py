@@ -76,9 +76,10 @@ def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[
     gains = (g["hc_gain_pct_vs_random"], g["hc_gain_ci95_pct"], g["rtt_gain_pct_vs_random"],
              g["rtt_gain_ci95_pct"])
     if all(math.isfinite(x) for x in gains):
-        first = (f"Destination grouping (rule '{grouping}') raises handling capacity by "
-                 f"{_p(gains[0])} % ± {_p(gains[1])} % and shortens the round trip by "
-                 f"{_p(gains[2])} % ± {_p(gains[3])} % against conventional control {where}")
+        first = (f"Destination grouping (rule '{grouping}'; ideal bound: every car open to "
+                 f"allocation) raises handling capacity by {_p(gains[0])} % ± {_p(gains[1])} % "
+                 f"and shortens the round trip by {_p(gains[2])} % ± {_p(gains[3])} % against "
+                 f"conventional control {where}")
     else:
         first = (f"The gain of destination grouping (rule '{grouping}') over conventional "
                  f"control {where} cannot be estimated from these batches: too few of them "
@@ -91,9 +92,9 @@ def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[
             verdict += (f", though grouping would meet the criteria with "
                         f"{count_of(saved, 'car')} fewer")
     elif g["design_hc"] >= demand:
-        verdict = (f"; it is needed here: conventional control carries only "
-                   f"{_p(base['design_hc'])} % at design load {with_cars}, destination "
-                   f"grouping {_p(g['design_hc'])} %")
+        verdict = (f"; conventional control carries only {_p(base['design_hc'])} % at design "
+                   f"load {with_cars}, destination grouping at most {_p(g['design_hc'])} % "
+                   f"(the bound)")
         if saved:
             verdict += (f", and it saves {count_of(saved, 'car')} against a conventional group "
                         f"that meets the criteria")
@@ -117,22 +118,25 @@ def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[
 
 def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: int = 2026,
             ci_target_pct: float = 0.5, trials: int | None = None,
-            max_trials: int = 1_000_000, quiet: bool = True, threads=None) -> dict:
+            max_trials: int = 1_000_000, quiet: bool = True, threads=None, stages=None) -> dict:
     """Run the whole job and write ``report.html`` (and the charts, sweep.csv) into out_dir.
 
     ``out_dir`` should be a folder of this run alone (the command line gives the private
     folder of :func:`experiments.outputs.output_set`): the report embeds the charts this
     run drew there. Adaptive runs stop at ``max_trials`` (the sweeps at 400,000) or at the
-    run limits (:func:`experiments.limits.trial_cap`).
+    run limits (:func:`experiments.limits.trial_cap`). ``stages(text)`` is told each stage
+    as it begins (see :class:`experiments.progress.Stages`).
     """
+    from .progress import no_stages
+    stages = no_stages if stages is None else stages
     with _chart_worker() as worker:
         return _run_job(scenario, input_path, out_dir, worker, seed=seed,
                         ci_target_pct=ci_target_pct, trials=trials, max_trials=max_trials,
-                        quiet=quiet, threads=threads)
+                        quiet=quiet, threads=threads, stages=stages)
 
 
 def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, max_trials,
-             quiet, threads):
+             quiet, threads, stages):
     from roundtrip.classical import demand_calculation
     from allocation.registry import default_rules
     from batchrounds.montecarlo import compare_rules
@@ -152,20 +156,29 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
     job = replace(scenario, traffic=traffic)
     sweep_cap = min(max_trials, 400_000)
 
+    stages("classical calculation")
     classical = demand_calculation(b, g, traffic, poisson=True)
+    stages("Monte Carlo round trips at the demand (a first run compiles the kernels, "
+           "about 10 s)")
     mc = simulate_demand(b, g, traffic, **run, max_trials=trial_cap(
         max_trials, passengers_per_car=g.design_load_persons))
+    stages(f"allocation rules on common passengers ({', '.join(rules)}; each rule compiles "
+           f"on first use)")
     comparison = compare_rules(b, g, rules, mc.passengers_per_trip, traffic=traffic, **run,
                                max_trials=trial_cap(max_trials, cars=g.cars, rules=len(rules),
                                                     passengers_per_car=mc.passengers_per_trip))
+    stages(f"demand sweep, {SWEEP_POINTS} points")
     sweep = demand_sweep(job, demand_points(demand), rules, max_trials=sweep_cap,
                          quiet=quiet, **run)
+    stages(f"cars open to allocation, 1 to {g.cars}")
     opens = demand_sweep(job, [demand], rules, cars_open_list=list(range(1, g.cars + 1)),
                          max_trials=sweep_cap, quiet=quiet, **run)
+    stages("sizing")
     criteria = default_criteria(job)
     sizing = size_group(job, rules, criteria, list(range(1, g.cars + 4)),
                         [g.rated_load_persons], [g.rated_speed_mps], max_trials=max_trials,
                         **run)
+    stages("charts and the report")
     design = opens[opens["cars_open"] == g.cars].set_index("rule")
     at_demand = {r["rule"]: {**r, "design_hc": float(
         design.loc[r["rule"], "design_load_handling_capacity_pct_5min"])}
@@ -213,6 +226,7 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
         "stamp": stamp,
     }
     report = write_report(context, out_dir)
+    stages(f"report written: {report}")
     return {"report": str(report), "headline": headline, "headline_numbers": numbers,
             "figures": [str(p) for p in paths], "csv": str(out_dir / "sweep.csv"),
             "stamp": stamp, "rules": list(at_demand.values()),
@@ -322,23 +336,29 @@ def _method() -> list[str]:
         "(plus 2·d_x/v for an express zone), with the expected stops S and highest reversal floor "
         "H for the floor populations, the interval RTT / cars and the 5-minute handling capacity "
         "300·P / interval, solved for the car load P that carries the demand.",
-        "Monte Carlo round trips: each trial samples the passengers of a round, times each car's "
-        "trip on the real floor levels with ideal jerk-limited flights, door and transfer times, "
-        "and respects the rated load. Trials are added until the 95 % interval of the round-trip "
-        "time is within the target.",
+        "Monte Carlo round trips: each car's passengers arrive at random over its interval "
+        "(Poisson counts, the same passenger model as the classical column); each car's trip is "
+        "timed on the real floor levels with ideal jerk-limited flights, door and transfer times, "
+        "with at most the rated load aboard; whoever a car cannot take waits for the next one, so "
+        "nobody is dropped. The demand sets the load where the passengers carried match the "
+        "arrivals. Trials are added until the 95 % interval of the round-trip time is within the "
+        "target.",
         "Allocation rules: conventional control ('random') loads cars in arrival order; "
         "destination rules group passengers by floor. All rules run on the very same sampled "
-        "passengers, so their differences are measured with paired intervals.",
+        "passengers, each car carrying as many as under conventional control, so their "
+        "differences are measured with paired intervals.",
     ]
 
 
 def _assumptions() -> list[str]:
     return [
-        "Up-peak traffic unless the input gives a traffic mix; passengers arrive independently.",
-        "Every rule is compared at the same car load (passengers per car per round); a rule that "
-        "groups passengers would in practice run lighter cars at the same demand.",
-        "Each car takes at most its equal share of a round's passengers, and never more than its "
-        "rated load.",
+        "Up-peak traffic unless the input gives a traffic mix; passengers arrive independently, "
+        "at random (Poisson counts per car interval).",
+        "Every rule is compared at the same car load: each car carries the passengers "
+        "conventional control would give it; a rule that groups passengers would in practice "
+        "run lighter cars at the same demand.",
+        "The design load limits how many are in the car at once (the mean load on the busiest "
+        "stretch of the trip); no car ever holds more than its rated load.",
         "Ideal kinematics: no levelling, re-levelling, door dwell or passenger hesitation beyond "
         "the stated times; no interference between cars at the lobby.",
         "Destination grouping with every car open to allocation is an upper bound on what a "
@@ -361,7 +381,8 @@ def _sources() -> list[str]:
 def _tables(classical, mc, at_demand, sizing, criteria) -> list[dict]:
     from allocation.registry import get_rule
     c, m = classical.to_dict(), mc.to_dict()
-    t1 = {"title": "Conventional control at the design demand: classical formula and Monte Carlo",
+    t1 = {"title": f"Conventional control at the design demand: classical formula and Monte Carlo "
+                   f"({c['passenger_model']} passenger counts, {c['traffic_mix']} traffic)",
           "columns": ["quantity", "classical", "Monte Carlo", "± 95 %", "unit"],
           "rows": [["passengers per trip", c["passengers_per_trip"], m["passengers_per_trip"], "", "persons"],
                    ["round-trip time", c["round_trip_time_s"], m["round_trip_time_s"], m["ci95_s"], "s"],
@@ -369,18 +390,26 @@ def _tables(classical, mc, at_demand, sizing, criteria) -> list[dict]:
                    ["stops", c["expected_stops"], m["expected_stops"], m["expected_stops_ci95"], ""],
                    ["highest reversal floor", c["highest_reversal_floor"],
                     m["highest_reversal_floor"], m["highest_reversal_floor_ci95"], ""],
-                   ["handling capacity", c["handling_capacity_pct_5min"],
+                   ["passengers carried per trip", c["passengers_per_trip"],
+                    m["passengers_carried_per_trip"], m["passengers_carried_ci95"], "persons"],
+                   ["car load", c["car_load_pct"], m["car_load_pct"], "", "% of rated load"],
+                   ["handling capacity (carried)", c["handling_capacity_pct_5min"],
                     m["handling_capacity_pct_5min"], "", "% / 5 min"],
+                   ["trips that leave someone behind", "", 100.0 * m["left_behind_share"], "", "%"],
                    ["saturated", "yes" if c["saturated"] else "no",
                     "yes" if m["saturated"] else "no", "", ""]]}
-    t2 = {"title": "Allocation rules at the design demand (same passengers)",
+    t2 = {"title": f"Allocation rules at the design demand (same passengers, "
+                   f"{c['passenger_model']} passenger counts, every car open to allocation: the "
+                   f"ideal bound)",
           "columns": ["rule", "RTT [s]", "± [s]", "interval [s]", "stops", "highest floor",
                       "HC gain [%]", "±", "HC at design load [%/5 min]"],
           "rows": [[r["rule"], r["round_trip_time_s"], r["ci95_s"], r["interval_s"],
                     r["expected_stops"], r["highest_reversal_floor"], r["hc_gain_pct_vs_random"],
                     r["hc_gain_ci95_pct"], r["design_hc"]] for r in at_demand.values()]}
-    t3 = {"title": f"Sizing: smallest group with interval ≤ {criteria.interval_max_s:g} s and "
-                   f"handling capacity ≥ {criteria.hc_min_pct:g} % at design load",
+    t3 = {"title": f"Sizing: smallest group with interval ≤ {criteria.interval_max_s:g} s at the "
+                   f"demand and handling capacity ≥ {criteria.hc_min_pct:g} % at design load "
+                   f"(destination "
+                   f"rules with {sizing['cars_open']} cars open to allocation)",
           "columns": ["rule", "cars", "rated load [persons]", "speed [m/s]", "interval [s]",
                       "HC [%/5 min]"],
           "rows": [[d["rule"], d["cars"] if d["found"] else "none found",

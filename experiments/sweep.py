@@ -1,8 +1,8 @@
 """Demand sweeps: every rule at every demand point, on common passengers.
 
-At each point (demand, cars, cars open) the car load P is the Monte Carlo
-demand fixed point P = lambda RTT(P) / cars under conventional control, capped
-at the design load (see :func:`roundtrip.montecarlo.simulate_demand`), and all
+At each point (demand, cars, cars open) the load P is the Monte Carlo demand
+fixed point on carried passengers under conventional control, capped at the
+design load (see :func:`roundtrip.montecarlo.simulate_demand`), and all
 rules are compared at that same load on the same batches (common random
 numbers, the same seed at every point so that the curves are smooth). A
 grouping rule would in practice run lighter cars at the same demand, so its
@@ -10,8 +10,9 @@ gains at equal load are exact for handling capacity and conservative for
 waiting time.
 
 Separately, for each (cars, cars open), every rule is run at the design load
-(capacity factor x rated load): its handling capacity there is the most demand
-it can carry, so a rule saturates where the demand line crosses it.
+(the load at which the busiest stretch of the trip carries capacity factor x
+rated load): its handling capacity there is the most demand it can carry, so a
+rule saturates where the demand line crosses it.
 
 The result is one tidy table (one row per rule per point) with every figure
 and its 95 % interval.
@@ -47,6 +48,7 @@ def demand_sweep(scenario: Scenario, arrivals, rules, *, cars_list=None, cars_op
     import pandas as pd
 
     from batchrounds.montecarlo import compare_rules
+    from roundtrip.classical import design_passengers
     from roundtrip.montecarlo import simulate_demand
 
     base_traffic = scenario.traffic or Traffic(arrivals[0])
@@ -64,7 +66,8 @@ def demand_sweep(scenario: Scenario, arrivals, rules, *, cars_list=None, cars_op
         for cars, k in designs:
             group = replace(scenario.group, cars=cars)
             cap = trial_cap(max_trials, cars=cars, rules=n_rules, passengers_per_car=design_load)
-            c = compare_rules(scenario.building, group, rules, group.design_load_persons,
+            c = compare_rules(scenario.building, group, rules,
+                              design_passengers(scenario.building, group, scenario.traffic),
                               cars_open=k, traffic=scenario.traffic, max_trials=cap, **run)
             for r in c.to_dict()["rules"]:
                 capacity[(cars, k, r["rule"])] = r

@@ -9,17 +9,19 @@ these kernels must equal exactly.
 The trip model of one car (documented with a worked trip in
 ``docs/trip_model.md``):
 
-* it leaves the lobby (floor 0), stops in ascending order at every origin and
-  destination of its up-travelling passengers, reverses at the highest call,
-  stops in descending order at every origin and destination of its
-  down-travelling passengers, and returns to the lobby;
+* it stops in ascending order at every origin and destination of its
+  up-travelling passengers, reverses at the highest call, stops in
+  descending order at every origin and destination of its down-travelling
+  passengers; a trip with lobby traffic (or with nobody) starts and ends at
+  the lobby (floor 0), any other at its lowest stop;
 * at each stop passengers alight first, then board in arrival order while the
   load is below the rated load; a passenger who would take the car above it
-  is left behind (their call is still answered, their destination is not);
+  is left behind, and a full car answers no landing call (a floor is a stop
+  only for those who board or alight there);
 * time = flights between consecutive stops (in trip order, from the
   flight-time table) + stops x (door open + door close + start delay), the
-  lobby counted once + boardings x t_in + alightings x t_out, summed in that
-  order (:func:`trip_time_s`, the one place the sum is written).
+  terminal stop counted once + boardings x t_in + alightings x t_out, summed
+  in that order (:func:`trip_time_s`, the one place the sum is written).
 
 Inputs arrive as small records (named tuples, see :mod:`roundtrip.schedule`
 and :mod:`roundtrip.passengers`): ``timing`` (flight table, stop overhead,
@@ -35,7 +37,7 @@ from __future__ import annotations
 from typing import NamedTuple
 
 import numpy as np
-from numba import njit, prange
+from numba import njit
 
 # Columns of the integer result array of a trip.
 STOPS, HIGHEST, LOWEST, BOARDED, PEAK_LOAD, LEFT_BEHIND, OFFERED = range(7)
@@ -54,7 +56,8 @@ class TripScratch(NamedTuple):
 class ScheduleOut(NamedTuple):
     """Where :func:`trip_schedule` writes a trip's schedule (see :func:`new_schedule`).
 
-    Entry 0 is the start at the lobby, the last entry the return to it.
+    Entry 0 is the start at the terminal floor (the lobby, or for a trip without
+    lobby traffic its lowest stop), the last entry the return to it.
     """
 
     stop_floor: np.ndarray   # int64, 2 x floors + 3 entries: the floor of each entry
@@ -121,7 +124,10 @@ def sample_cells(uniforms, alias, origin_out, dest_out):
 @njit(cache=True, inline="always")
 def trip_time_s(flight_s, stops, boarded, timing):
     """Round-trip time [s]: flights + (stops + 1) x stop overhead + boardings x t_in
-    + alightings x t_out (every passenger who boards alights), in that order."""
+    + alightings x t_out (every passenger who boards alights), in that order.
+
+    ``stops`` are the trip's stops besides its terminal stop (the lobby, or for a
+    trip without lobby traffic its lowest stop), which is counted once."""
     return (flight_s + (stops + 1) * timing.stop_overhead_s + boarded * timing.transfer_in_s
             + boarded * timing.transfer_out_s)
 
@@ -145,9 +151,12 @@ def _sweep(orig, dest, n, up, capacity, scratch):
     ``scratch.order`` receives this direction's passengers sorted by origin
     (ascending for up, descending for down), stable in arrival order; the sweep
     then boards each in turn while the load is below ``capacity`` and marks
-    ``scratch.boarded[i] = 1`` for each who boards. Writes the stop mask into
-    ``scratch.mask[0]``; returns (boarded, peak load, left behind, origin-0 or
-    dest-0 traffic).
+    ``scratch.boarded[i] = 1`` for each who boards (entries of the others are
+    left as they were). Writes into ``scratch.mask[0]`` the stop mask of the
+    direction: the origin and destination of every passenger who boards (a full
+    car passes a floor where nobody alights: it answers no landing call, the
+    full-load bypass of common practice). Returns (boarded, peak load, left
+    behind).
     """
     order = scratch.order
     alight = scratch.alight
@@ -173,10 +182,9 @@ def _sweep(orig, dest, n, up, capacity, scratch):
     peak = 0
     boarded = 0
     left = 0
-    lobby = False
     if m == 0:
         scratch.mask[0] = mask
-        return 0, 0, 0, False
+        return 0, 0, 0
     n_levels = alight.shape[0]
     for f in range(n_levels):
         alight[f] = 0
@@ -194,23 +202,18 @@ def _sweep(orig, dest, n, up, capacity, scratch):
             while g > o:
                 g -= 1
                 load -= alight[g]
-        mask |= one << np.uint64(o)
         if load < capacity:
             load += 1
             boarded += 1
             scratch.boarded[i] = 1
             alight[dest[i]] += 1
-            mask |= one << np.uint64(dest[i])
+            mask |= (one << np.uint64(o)) | (one << np.uint64(dest[i]))
             if load > peak:
                 peak = load
-            if dest[i] == 0:
-                lobby = True
         else:
             left += 1
-        if o == 0:
-            lobby = True
     scratch.mask[0] = mask
-    return boarded, peak, left, lobby
+    return boarded, peak, left
 
 
 # Index of the lowest set bit of a 64-bit word: multiply the isolated bit by a
@@ -232,19 +235,51 @@ def lowest_bit(m):
 
 
 @njit(cache=True, inline="always")
-def _route(up_mask, dn_mask, flight_s):
-    """Fly the route: up stops ascending, down stops descending, back to the lobby.
+def terminal_floor(up_mask, dn_mask):
+    """The floor where a trip starts and ends: the lobby when a passenger boards or
+    alights there (bit 0 of either stop mask) or when the trip carries nobody,
+    otherwise the lowest floor it stops at."""
+    both = up_mask | dn_mask
+    if both == np.uint64(0) or (both & np.uint64(1)):
+        return 0
+    return lowest_bit(both)
 
-    Returns (flight time [s], stops above the lobby, highest floor, lowest floor
-    served or -1 when none).
-    """
-    n_levels = flight_s.shape[0]
+
+@njit(cache=True, inline="always")
+def _lobby_route(up_mask, flight_s):
+    """The up-peak route: from the lobby up through ``up_mask`` (destination floors,
+    bit 0 ignored) and back. Returns (flight time [s], stops above the lobby,
+    highest floor)."""
     one = np.uint64(1)
     flight = 0.0
     pos = 0
     stops = 0
-    m = up_mask & ~one                                # up journey, ascending
-    lowest = lowest_bit(m) if m else -1
+    m = up_mask & ~one
+    while m:
+        f = lowest_bit(m)
+        m &= m - one
+        flight += flight_s[pos, f]
+        pos = f
+        stops += 1
+    return flight + flight_s[pos, 0], stops, pos
+
+
+@njit(cache=True, inline="always")
+def _route(up_mask, dn_mask, flight_s):
+    """Fly the route: from the terminal floor T (:func:`terminal_floor`), the up stops
+    above T ascending, the down stops above T descending (a floor that is both the
+    last up stop and the first down stop is one stop), back to T.
+
+    Returns (flight time [s], stops besides the terminal stop, highest floor, T).
+    """
+    n_levels = flight_s.shape[0]
+    one = np.uint64(1)
+    T = terminal_floor(up_mask, dn_mask)
+    below = (one << np.uint64(T + 1)) - one            # floors 0 ... T
+    flight = 0.0
+    pos = T
+    stops = 0
+    m = up_mask & ~below                               # up journey, ascending
     while m:
         f = lowest_bit(m)
         m &= m - one
@@ -252,8 +287,8 @@ def _route(up_mask, dn_mask, flight_s):
         pos = f
         stops += 1
     highest = pos
-    if dn_mask & ~one:
-        for f in range(n_levels - 1, 0, -1):          # down journey, descending
+    if dn_mask & ~below:
+        for f in range(n_levels - 1, T, -1):           # down journey, descending
             if (dn_mask >> np.uint64(f)) & one:
                 if f != pos:
                     flight += flight_s[pos, f]
@@ -261,10 +296,8 @@ def _route(up_mask, dn_mask, flight_s):
                     stops += 1
                 if f > highest:
                     highest = f
-                if lowest < 0 or f < lowest:
-                    lowest = f
-    flight += flight_s[pos, 0]                        # return to the lobby
-    return flight, stops, highest, lowest
+    flight += flight_s[pos, T]                         # back to the terminal floor
+    return flight, stops, highest, T
 
 
 @njit(cache=True, inline="always")
@@ -284,7 +317,8 @@ def car_trip(orig, dest, n, timing, scratch, counts_out, row):
     :func:`trip_time_s` of the trip's schedule (:func:`trip_schedule` gives the
     same trip stop by stop). A trip whose passengers all board at the lobby
     takes the short up-peak path; any other goes through the floor-by-floor
-    sweeps.
+    sweeps, which also mark ``scratch.boarded[i] = 1`` for each passenger who
+    boards (the caller clears it first when it reads it).
     """
     if _all_at_lobby(orig, n):
         one = np.uint64(1)
@@ -301,7 +335,7 @@ def lobby_trip_of_mask(up_mask, n, boarded, timing, counts_out, row):
     """The up-peak trip once its stops are known: ``up_mask`` holds the destinations of
     the ``boarded`` passengers (of ``n`` offered at the lobby). Writes counts_out[row]
     and returns the round-trip time [s]."""
-    flight, stops, highest, lowest = _route(up_mask, np.uint64(0), timing.flight_s)
+    flight, stops, highest = _lobby_route(up_mask, timing.flight_s)
     write_counts(counts_out, row, stops, highest, 0, boarded, boarded, n - boarded, n)
     return trip_time_s(flight, stops, boarded, timing)
 
@@ -309,17 +343,16 @@ def lobby_trip_of_mask(up_mask, n, boarded, timing, counts_out, row):
 @njit(cache=True)
 def _mixed_trip(orig, dest, n, timing, scratch, counts_out, row):
     """Any trip: the up sweep and the down sweep decide who boards, then the route."""
-    b_up, peak_up, left_up, lobby_up = _sweep(orig, dest, n, True, timing.rated_load, scratch)
+    b_up, peak_up, left_up = _sweep(orig, dest, n, True, timing.rated_load, scratch)
     up_mask = scratch.mask[0]
-    b_dn, peak_dn, left_dn, lobby_dn = _sweep(orig, dest, n, False, timing.rated_load, scratch)
+    b_dn, peak_dn, left_dn = _sweep(orig, dest, n, False, timing.rated_load, scratch)
     dn_mask = scratch.mask[0]
     boarded = b_up + b_dn
-    flight, stops, highest, lowest = _route(up_mask, dn_mask, timing.flight_s)
-    if lobby_up or lobby_dn or lowest < 0:
-        lowest = 0
-    write_counts(counts_out, row, stops, highest, lowest, boarded, max(peak_up, peak_dn),
-                 left_up + left_dn, n)
-    return trip_time_s(flight, stops, boarded, timing)
+    flight, inner, highest, T = _route(up_mask, dn_mask, timing.flight_s)
+    # stops above the lobby: the terminal floor counts too when it is not the lobby
+    write_counts(counts_out, row, inner + (1 if T > 0 else 0), highest, T, boarded,
+                 max(peak_up, peak_dn), left_up + left_dn, n)
+    return trip_time_s(flight, inner, boarded, timing)
 
 
 # ------------------------------------------------------------------ the schedule
@@ -329,11 +362,12 @@ def trip_schedule(orig, dest, n, timing, scratch, out):
 
     The same model as :func:`car_trip` (the same sweeps decide who boards, the
     same route is flown), written out per stop into ``out`` (a
-    :class:`ScheduleOut` from :func:`new_schedule`). Entry 0 is the start at the
-    lobby, entries 1 ... S the stops above it in trip order, entry S + 1 the
-    return to the lobby. Time 0 is the start of the lobby stop (doors start to
-    open). Every time is the model's sum over what happened before it, in the
-    order of :func:`trip_time_s`::
+    :class:`ScheduleOut` from :func:`new_schedule`). Entry 0 is the start at
+    the terminal floor (the lobby, or for a trip without lobby traffic its
+    lowest stop), entries 1 ... S' the other stops in trip order, entry S' + 1
+    the return to the terminal floor. Time 0 is the start of the terminal stop
+    (doors start to open). Every time is the model's sum over what happened
+    before it, in the order of :func:`trip_time_s`::
 
         arrive[s] = F_s + s o + B_<s t_in + A_<s t_out
         depart[s] = F_s + (s + 1) o + B_<=s t_in + A_<=s t_out
@@ -342,13 +376,13 @@ def trip_schedule(orig, dest, n, timing, scratch, out):
     (door open + door close + start delay) and B, A the boardings and
     alightings so far. A passenger alighting j-th (in arrival order) at entry s
     is out at arrive[s] + door open + j t_out. The last entry's ``depart_s``
-    is the round-trip time (the lobby stop counted once, at the start, as in
+    is the round-trip time (the terminal stop counted once, at the start, as in
     ``docs/trip_model.md``); it equals :func:`car_trip` to the bit.
 
     Returns
     -------
     (entries, round_trip_time_s)
-        ``entries`` = S + 2 filled entries.
+        ``entries`` = S' + 2 filled entries.
     """
     one = np.uint64(1)
     flags = scratch.boarded
@@ -360,6 +394,8 @@ def trip_schedule(orig, dest, n, timing, scratch, out):
         for i in range(min(n, timing.rated_load)):
             flags[i] = 1
             up_mask |= one << np.uint64(dest[i])
+        if n > 0:
+            up_mask |= one                     # the lobby: they board there
     else:
         _sweep(orig, dest, n, True, timing.rated_load, scratch)
         up_mask = scratch.mask[0]
@@ -367,13 +403,15 @@ def trip_schedule(orig, dest, n, timing, scratch, out):
         dn_mask = scratch.mask[0]
     flight_s = timing.flight_s
     n_levels = flight_s.shape[0]
+    T = terminal_floor(up_mask, dn_mask)
+    below = (one << np.uint64(T + 1)) - one
     # the route, as _route flies it, entry by entry
     e = 0
-    out.stop_floor[0] = 0
+    out.stop_floor[0] = T
     out.cum_flight_s[0] = 0.0
     flight = 0.0
-    pos = 0
-    m = up_mask & ~one
+    pos = T
+    m = up_mask & ~below
     while m:
         f = lowest_bit(m)
         m &= m - one
@@ -383,8 +421,8 @@ def trip_schedule(orig, dest, n, timing, scratch, out):
         out.stop_floor[e] = f
         out.cum_flight_s[e] = flight
         out.up_entry[f] = e
-    if dn_mask & ~one:
-        for f in range(n_levels - 1, 0, -1):
+    if dn_mask & ~below:
+        for f in range(n_levels - 1, T, -1):
             if (dn_mask >> np.uint64(f)) & one:
                 if f != pos:
                     flight += flight_s[pos, f]
@@ -393,12 +431,12 @@ def trip_schedule(orig, dest, n, timing, scratch, out):
                     out.stop_floor[e] = f
                     out.cum_flight_s[e] = flight
                 out.down_entry[f] = e
-    flight += flight_s[pos, 0]
+    flight += flight_s[pos, T]
     e += 1
-    out.stop_floor[e] = 0
+    out.stop_floor[e] = T
     out.cum_flight_s[e] = flight
-    out.up_entry[0] = 0
-    out.down_entry[0] = e
+    out.up_entry[T] = 0
+    out.down_entry[T] = e
     for s in range(e + 1):
         out.boarded[s] = 0
         out.alighted[s] = 0
@@ -450,11 +488,6 @@ def _longest(offsets, first, last):
     return longest
 
 
-@njit(cache=True, inline="always")
-def _block(b, n_blocks, n_trials):
-    return b * n_trials // n_blocks, (b + 1) * n_trials // n_blocks
-
-
 @njit(cache=True)
 def _given_block(orig, dest, offsets, first, last, timing, out):
     """Trips ``first`` .. ``last - 1``; trip t's passengers are offsets[t]:offsets[t+1]."""
@@ -465,74 +498,8 @@ def _given_block(orig, dest, offsets, first, last, timing, out):
         out.rtt_s[t] = car_trip(orig[s:e], dest[s:e], e - s, timing, scratch, out.counts, t)
 
 
-@njit(cache=True, parallel=True)
-def given_car_trips(orig, dest, offsets, timing, n_blocks, out):
-    """Every trial is one car's trip with given passengers; trials are split into
-    ``n_blocks`` run in parallel. Each trial's result depends only on its own
-    passengers, so the numbers are the same for any thread count."""
-    n_trials = offsets.shape[0] - 1
-    for b in prange(n_blocks):
-        first, last = _block(b, n_blocks, n_trials)
-        _given_block(orig, dest, offsets, first, last, timing, out)
-
-
-@njit(cache=True, parallel=True)
-def sample_cells_parallel(uniforms, alias, n_blocks, origin_out, dest_out):
-    """Parallel :func:`sample_cells` over ``n_blocks`` contiguous blocks."""
-    n = uniforms.shape[0]
-    for b in prange(n_blocks):
-        first, last = _block(b, n_blocks, n)
-        sample_cells(uniforms[first:last], alias, origin_out[first:last], dest_out[first:last])
-
-
-@njit(cache=True)
-def _sampled_block(stream, first, last, alias, timing, out):
-    """As :func:`_given_block`, sampling each trip's passengers from its uniforms
-    into a small buffer first (the passengers never leave the cache)."""
-    offsets = stream.offsets
-    longest = _longest(offsets, first, last)
-    orig = np.empty(longest, np.int64)
-    dest = np.empty(longest, np.int64)
-    scratch = new_scratch(longest, timing.flight_s.shape[0])
-    for t in range(first, last):
-        s = offsets[t]
-        e = offsets[t + 1]
-        sample_cells(stream.uniforms[s:e], alias, orig, dest)
-        out.rtt_s[t] = car_trip(orig, dest, e - s, timing, scratch, out.counts, t)
-
-
-@njit(cache=True, parallel=True)
-def sampled_car_trips(stream, alias, timing, n_blocks, out):
-    """Every trial is one car's trip, its passengers drawn from
-    stream.uniforms[offsets[t]:offsets[t+1]] by the alias table; the same numbers
-    as :func:`sample_cells` then :func:`given_car_trips`."""
-    n_trials = stream.offsets.shape[0] - 1
-    for b in prange(n_blocks):
-        first, last = _block(b, n_blocks, n_trials)
-        _sampled_block(stream, first, last, alias, timing, out)
-
-
-@njit(cache=True)
-def _uppeak_block(stream, first, last, alias, timing, out):
-    """Up-peak trips (every origin the lobby): sample each boarding passenger's
-    destination straight into the stop mask. The same numbers as
-    :func:`_sampled_block` when the OD matrix has only lobby origins."""
-    one = np.uint64(1)
-    uniforms = stream.uniforms
-    for t in range(first, last):
-        s = stream.offsets[t]
-        n = stream.offsets[t + 1] - s
-        boarded = min(n, timing.rated_load)
-        mask = np.uint64(0)
-        for i in range(s, s + boarded):
-            mask |= one << np.uint64(alias.cell_dest[draw_cell(uniforms[i], alias)])
-        out.rtt_s[t] = lobby_trip_of_mask(mask, n, boarded, timing, out.counts, t)
-
-
-@njit(cache=True, parallel=True)
-def uppeak_car_trips(stream, alias, timing, n_blocks, out):
-    """Parallel :func:`_uppeak_block` over ``n_blocks`` blocks of trials."""
-    n_trials = stream.offsets.shape[0] - 1
-    for b in prange(n_blocks):
-        first, last = _block(b, n_blocks, n_trials)
-        _uppeak_block(stream, first, last, alias, timing, out)
+@njit(cache=True, nogil=True)
+def given_car_trips(orig, dest, offsets, timing, out):
+    """Every trial is one car's trip with given passengers, each on its own (for tests
+    and diagrams; the Monte Carlo runs chains, :mod:`roundtrip._chain_kernel`)."""
+    _given_block(orig, dest, offsets, 0, offsets.shape[0] - 1, timing, out)

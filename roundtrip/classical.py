@@ -148,15 +148,33 @@ def average_transit_time_s(S: float, H: float, P: float, t_v_s: float, t_s_s: fl
 
 
 # ---------------------------------------------------------------- the chain
+#: Formula and exact expectation this far apart [%] earn the rated-speed note.
+RATED_SPEED_NOTE_PCT = 1.0
+
+
 @dataclass(frozen=True)
-class UppeakResult:
-    """Every figure of one classical up-peak calculation (units in the names)."""
+class ClassicalResult:
+    """Every figure of one classical calculation (units in the names).
+
+    ``traffic_mix`` is "up-peak" (the up-peak formula of this module), or
+    "down-peak", "interfloor" or "mixed" (the general analysis of
+    :mod:`roundtrip.general_analysis`). The car load is
+    the mean load on the busiest stretch of the trip (up-peak: P, everyone rides
+    up from the lobby), and the design load limits it (so a lunch-time trip may
+    carry more passengers than the design load, never more at once). Waiting and
+    transit times are the up-peak estimates, given only for up-peak traffic at a
+    load the group carries; otherwise None (the peak simulation gives them).
+    """
 
     mode: str
+    traffic_mix: str
     passenger_model: str
     passengers_per_trip: float
     expected_stops: float
+    expected_up_stops: float
+    expected_down_stops: float
     highest_reversal_floor: float
+    lowest_reversal_floor: float
     average_interfloor_height_m: float
     t_v_s: float
     single_floor_flight_s: float
@@ -164,15 +182,19 @@ class UppeakResult:
     t_p_s: float
     express_time_s: float
     round_trip_time_s: float
+    exact_round_trip_time_s: float
     interval_s: float
     handling_capacity_persons_5min: float
     handling_capacity_pct_5min: float
+    car_load_persons: float
     car_load_pct: float
-    average_waiting_time_s: float
+    design_load_persons: float
+    average_waiting_time_s: float | None
     average_waiting_time_in_range: bool
-    average_transit_time_s: float
-    average_time_to_destination_s: float
+    average_transit_time_s: float | None
+    average_time_to_destination_s: float | None
     rated_speed_reached_in_one_floor: bool
+    rated_speed_note: bool
     saturated: bool
     demand_persons_5min: float | None = None
     demand_pct_5min: float | None = None
@@ -181,9 +203,95 @@ class UppeakResult:
         return asdict(self)
 
 
+#: The up-peak result is the classical result of up-peak traffic (the former name).
+UppeakResult = ClassicalResult
+
+
+def is_uppeak(traffic: Traffic | None) -> bool:
+    """Up-peak traffic: every passenger enters at the lobby (None means up-peak)."""
+    return traffic is None or (traffic.incoming == 1.0 and traffic.outgoing == 0.0
+                               and traffic.interfloor == 0.0)
+
+
+def traffic_mix_name(traffic: Traffic | None) -> str:
+    """"up-peak", "down-peak" (all outgoing), "interfloor" (all interfloor) or "mixed"."""
+    if is_uppeak(traffic):
+        return "up-peak"
+    if traffic.outgoing == 1.0:
+        return "down-peak"
+    if traffic.interfloor == 1.0:
+        return "interfloor"
+    return "mixed"
+
+
+def _exact_round_trip_time_s(building: Building, group: LiftGroup, od, passengers: float,
+                             poisson: bool) -> float:
+    """The trip model's exact expected round-trip time (everyone boards) [s]: the
+    general analysis on the real levels, with each short flight's own time
+    (:func:`roundtrip.general_analysis.exact_flight_time_s`). A real fixed P is the
+    model's mix of the two nearest integers."""
+    from .general_analysis import exact_flight_time_s, general_trip
+    from .kinematics import flight_table_s
+    v, a, j = group.rated_speed_mps, group.acceleration_mps2, group.jerk_mps3
+    levels = building.levels_m
+    table = flight_table_s(levels, v, a, j)
+    d_speed = regime_boundaries_m(v, a, j)[0]
+    cruise = float(flight_time_s(d_speed, v, a, j)) - d_speed / v
+
+    def at(p: float) -> float:
+        trip = general_trip(od, levels, p, poisson)
+        return (exact_flight_time_s(od, levels, table, p, poisson, trip, v, cruise, d_speed)
+                + trip.stop_events * group.stop_overhead_s
+                + p * (group.transfer_in_s + group.transfer_out_s))
+
+    if poisson or float(passengers).is_integer():
+        return at(passengers)
+    base = math.floor(passengers)
+    frac = passengers - base
+    return (1.0 - frac) * at(base) + frac * at(base + 1)
+
+
+def round_trip_calculation(building: Building, group: LiftGroup, passengers: float,
+                           poisson: bool = True, traffic: Traffic | None = None,
+                           mode: str = "given load", saturated: bool | None = None) -> ClassicalResult:
+    """The classical round trip at a given load, for any traffic mix.
+
+    Up-peak traffic (``traffic`` None or all incoming) uses the up-peak formula
+    (:func:`uppeak_calculation`); any other mix the general analysis
+    (:mod:`roundtrip.general_analysis`). ``saturated`` None: the load is above the
+    design load (car load on the busiest stretch above capacity_factor x rated
+    load).
+    """
+    if is_uppeak(traffic):
+        return uppeak_calculation(building, group, passengers, poisson, mode=mode,
+                                  saturated=saturated, traffic=traffic)
+    return _general_calculation(building, group, passengers, poisson, traffic, mode, saturated)
+
+
+def _times(building: Building, group: LiftGroup):
+    v, a, j = group.rated_speed_mps, group.acceleration_mps2, group.jerk_mps3
+    d_f = building.average_interfloor_height_m
+    t_v = d_f / v
+    t_f1 = flight_time_s(d_f, v, a, j)
+    t_s = stop_time_s(t_f1, t_v, group.door_open_s, group.door_close_s, group.start_delay_s)
+    return d_f, t_v, t_f1, t_s
+
+
+def _demand(building: Building, traffic: Traffic | None):
+    if traffic is None:
+        return None, None
+    return traffic.arrival_rate_pct_5min / 100.0 * building.total_population, \
+        traffic.arrival_rate_pct_5min
+
+
+def _overloaded(car_load: float, group: LiftGroup) -> bool:
+    return car_load > group.design_load_persons * (1.0 + 1e-9)
+
+
 def uppeak_calculation(building: Building, group: LiftGroup, passengers: float,
                        poisson: bool = False, mode: str = "given load",
-                       saturated: bool = False, traffic: Traffic | None = None) -> UppeakResult:
+                       saturated: bool | None = None,
+                       traffic: Traffic | None = None) -> ClassicalResult:
     """The classical up-peak calculation at a given mean car load.
 
     Parameters
@@ -192,6 +300,8 @@ def uppeak_calculation(building: Building, group: LiftGroup, passengers: float,
         Passengers per trip P [persons], >= 0.
     poisson : bool
         Use the Poisson forms of S and H (passenger counts Poisson with mean P).
+    saturated : bool, optional
+        Whether the group is saturated; None: P is above the design load.
     """
     if not (passengers >= 0 and math.isfinite(passengers)):
         raise ValueError(f"passengers = {passengers!r}: must be a finite number >= 0")
@@ -202,56 +312,113 @@ def uppeak_calculation(building: Building, group: LiftGroup, passengers: float,
     else:
         S = expected_stops(u, passengers)
         H = highest_reversal_floor(u, passengers)
-    v, a, j = group.rated_speed_mps, group.acceleration_mps2, group.jerk_mps3
-    d_f = building.average_interfloor_height_m
-    t_v = d_f / v
-    t_f1 = flight_time_s(d_f, v, a, j)
-    t_s = stop_time_s(t_f1, t_v, group.door_open_s, group.door_close_s, group.start_delay_s)
+    d_f, t_v, t_f1, t_s = _times(building, group)
     t_p = group.transfer_s
-    t_x = building.express_m / v
+    t_x = building.express_m / group.rated_speed_mps
     rtt = round_trip_time_s(S, H, passengers, t_v, t_s, t_p, t_x)
+    from .passengers import od_matrix
+    exact = _exact_round_trip_time_s(building, group, od_matrix(building), passengers, poisson)
     interval = rtt / group.cars
     hc = 300.0 * passengers / interval
     load = passengers / group.rated_load_persons
-    awt = average_waiting_time_s(interval, load)
+    saturated = _overloaded(passengers, group) if saturated is None else saturated
+    awt = None if saturated else average_waiting_time_s(interval, load)
     att = average_transit_time_s(S, H, passengers, t_v, t_s, t_p, t_x)
-    demand = demand_pct = None
-    if traffic is not None:
-        demand_pct = traffic.arrival_rate_pct_5min
-        demand = demand_pct / 100.0 * building.total_population
-    return UppeakResult(
-        mode=mode, passenger_model="poisson" if poisson else "fixed",
-        passengers_per_trip=float(passengers), expected_stops=S, highest_reversal_floor=H,
+    demand, demand_pct = _demand(building, traffic)
+    return ClassicalResult(
+        mode=mode, traffic_mix="up-peak", passenger_model="poisson" if poisson else "fixed",
+        passengers_per_trip=float(passengers), expected_stops=S, expected_up_stops=S,
+        expected_down_stops=0.0, highest_reversal_floor=H, lowest_reversal_floor=0.0,
         average_interfloor_height_m=d_f, t_v_s=t_v, single_floor_flight_s=t_f1, t_s_s=t_s,
-        t_p_s=t_p, express_time_s=t_x, round_trip_time_s=rtt, interval_s=interval,
+        t_p_s=t_p, express_time_s=t_x, round_trip_time_s=rtt, exact_round_trip_time_s=exact,
+        interval_s=interval, handling_capacity_persons_5min=hc,
+        handling_capacity_pct_5min=100.0 * hc / building.total_population,
+        car_load_persons=float(passengers), car_load_pct=100.0 * load,
+        design_load_persons=group.design_load_persons, average_waiting_time_s=awt,
+        average_waiting_time_in_range=awt_within_range(load),
+        average_transit_time_s=att,
+        average_time_to_destination_s=None if awt is None else awt + att,
+        rated_speed_reached_in_one_floor=bool(d_f >= regime_boundaries_m(
+            group.rated_speed_mps, group.acceleration_mps2, group.jerk_mps3)[0]),
+        rated_speed_note=bool(abs(rtt / exact - 1.0) * 100.0 > RATED_SPEED_NOTE_PCT)
+        if exact > 0 else False,
+        saturated=bool(saturated), demand_persons_5min=demand, demand_pct_5min=demand_pct)
+
+
+def _general_calculation(building, group, passengers, poisson, traffic, mode, saturated):
+    """The general analysis at a given load (see :func:`round_trip_calculation`)."""
+    from .general_analysis import general_round_trip_time_s, general_trip
+    from .passengers import od_matrix
+    if not (passengers >= 0 and math.isfinite(passengers)):
+        raise ValueError(f"passengers = {passengers!r}: must be a finite number >= 0")
+    od = od_matrix(building, traffic)
+    trip = general_trip(od, building.levels_m, passengers, poisson)
+    d_f, t_v, t_f1, t_s = _times(building, group)
+    rtt = general_round_trip_time_s(trip, group.rated_speed_mps, t_f1 - t_v,
+                                    group.stop_overhead_s, group.transfer_in_s,
+                                    group.transfer_out_s)
+    exact = _exact_round_trip_time_s(building, group, od, passengers, poisson)
+    interval = rtt / group.cars
+    hc = 300.0 * passengers / interval
+    saturated = _overloaded(trip.busiest_stretch_load, group) if saturated is None else saturated
+    demand, demand_pct = _demand(building, traffic)
+    return ClassicalResult(
+        mode=mode, traffic_mix=traffic_mix_name(traffic),
+        passenger_model="poisson" if poisson else "fixed",
+        passengers_per_trip=float(passengers), expected_stops=trip.expected_stops,
+        expected_up_stops=trip.up_stops, expected_down_stops=trip.down_stops,
+        highest_reversal_floor=trip.highest_reversal_floor,
+        lowest_reversal_floor=trip.lowest_reversal_floor, average_interfloor_height_m=d_f,
+        t_v_s=t_v, single_floor_flight_s=t_f1, t_s_s=t_s, t_p_s=group.transfer_s,
+        express_time_s=building.express_m / group.rated_speed_mps, round_trip_time_s=rtt,
+        exact_round_trip_time_s=exact, interval_s=interval,
         handling_capacity_persons_5min=hc,
         handling_capacity_pct_5min=100.0 * hc / building.total_population,
-        car_load_pct=100.0 * load, average_waiting_time_s=awt,
-        average_waiting_time_in_range=awt_within_range(load),
-        average_transit_time_s=att, average_time_to_destination_s=awt + att,
-        rated_speed_reached_in_one_floor=bool(d_f >= regime_boundaries_m(v, a, j)[0]),
-        saturated=saturated, demand_persons_5min=demand, demand_pct_5min=demand_pct)
+        car_load_persons=trip.busiest_stretch_load,
+        car_load_pct=100.0 * trip.busiest_stretch_load / group.rated_load_persons,
+        design_load_persons=group.design_load_persons, average_waiting_time_s=None,
+        average_waiting_time_in_range=False, average_transit_time_s=None,
+        average_time_to_destination_s=None,
+        rated_speed_reached_in_one_floor=bool(d_f >= regime_boundaries_m(
+            group.rated_speed_mps, group.acceleration_mps2, group.jerk_mps3)[0]),
+        rated_speed_note=bool(abs(rtt / exact - 1.0) * 100.0 > RATED_SPEED_NOTE_PCT)
+        if exact > 0 else False,
+        saturated=bool(saturated), demand_persons_5min=demand, demand_pct_5min=demand_pct)
+
+
+def design_passengers(building: Building, group: LiftGroup, traffic: Traffic | None) -> float:
+    """Passengers per trip at which the car load on the busiest stretch reaches the
+    design load: design load / (share of a trip's passengers on that stretch); the
+    design load itself in up-peak."""
+    if is_uppeak(traffic):
+        return group.design_load_persons
+    from .general_analysis import busiest_stretch_share
+    from .passengers import od_matrix
+    return group.design_load_persons / busiest_stretch_share(od_matrix(building, traffic))
 
 
 def demand_passengers(building: Building, group: LiftGroup, traffic: Traffic,
                       poisson: bool = False, tol: float = 1e-12) -> tuple[float, bool]:
     """Passengers per trip that carry the demand: the root of P = lambda RTT(P) / L.
 
-    lambda is the arrival rate [persons/s] and L the number of cars. RTT(P) is
-    concave in P and RTT(0) > 0, so g(P) = lambda RTT(P)/L - P has at most one
-    root on P >= 0; it is found by bisection on [0, design load].
+    lambda is the arrival rate [persons/s] and L the number of cars. RTT(P) rises
+    with P and RTT(0) > 0, so g(P) = lambda RTT(P)/L - P is positive at 0; its
+    root is found by bisection on [0, P_design], P_design the load at which the
+    busiest stretch carries the design load (:func:`design_passengers`; the design
+    load itself in up-peak).
 
     Returns
     -------
     (P, saturated)
-        ``saturated`` is True when no root lies at or below the design load
-        (capacity_factor x rated load); P is then the design load.
+        ``saturated`` is True when no root lies at or below P_design; P is then
+        P_design.
     """
     lam = traffic.arrival_rate_persons_per_s(building)
-    p_max = group.design_load_persons
+    p_max = design_passengers(building, group, traffic)
 
     def g(p: float) -> float:
-        return lam * uppeak_calculation(building, group, p, poisson).round_trip_time_s / group.cars - p
+        return lam * round_trip_calculation(building, group, p, poisson, traffic,
+                                            saturated=False).round_trip_time_s / group.cars - p
 
     if g(p_max) > 0:
         return p_max, True
@@ -266,8 +433,9 @@ def demand_passengers(building: Building, group: LiftGroup, traffic: Traffic,
 
 
 def demand_calculation(building: Building, group: LiftGroup, traffic: Traffic,
-                       poisson: bool = False) -> UppeakResult:
-    """The up-peak calculation at the car load the demand sets (see :func:`demand_passengers`)."""
+                       poisson: bool = False) -> ClassicalResult:
+    """The classical calculation at the car load the demand sets (see
+    :func:`demand_passengers`), for any traffic mix."""
     p, saturated = demand_passengers(building, group, traffic, poisson)
-    return uppeak_calculation(building, group, p, poisson, mode="demand",
-                              saturated=saturated, traffic=traffic)
+    return round_trip_calculation(building, group, p, poisson, traffic, mode="demand",
+                                  saturated=saturated)

@@ -1,22 +1,27 @@
 """Monte Carlo round trips of one car: estimates with 95 % confidence intervals.
 
-Each trial samples one car's passengers (origin and destination from the
-building's origin-destination matrix, see :mod:`roundtrip.passengers`) and
-times its round trip with the trip model of :mod:`roundtrip._trip_kernel`,
-on the real floor levels and the ideal jerk-limited flight time of every
-jump. The estimator lifts the classical formula's assumptions (rated speed
-reached in one floor jump, equal floor heights, up-peak only).
+Each trial is one trip of the car: its new passengers are those arriving
+during its interval (origin and destination from the building's
+origin-destination matrix, see :mod:`roundtrip.passengers`), and it is offered
+everyone waiting, those an earlier trip left behind first; whoever it cannot
+take waits for the next trip (nobody is dropped). Each trip is timed with the
+trip model of :mod:`roundtrip.schedule` on the real floor levels and the ideal
+jerk-limited flight time of every jump. The estimator lifts the classical
+formula's assumptions (rated speed reached in one floor jump, equal floor
+heights, everyone boards, up-peak only).
 
-This wrapper owns every policy decision and the random stream: one
-``numpy.random.Generator`` (PCG64) seeded by ``seed`` draws, chunk by chunk,
-first the passenger counts, then one uniform per passenger. The kernels only
-turn those arrays into trip figures, so the same seed gives bit-identical
-results on any number of threads.
+This wrapper owns every policy decision and the random stream, defined chunk
+by chunk in :mod:`roundtrip.stream`; the chain kernels
+(:mod:`roundtrip._chain_kernel`) turn each chunk into running sums, so memory
+does not grow with the trials and the same seed gives bit-identical results on
+any number of threads.
 
-Estimates: sample mean and the normal-theory 95 % half-width 1.96 s / sqrt(n).
-Trials are added until the half-width of the round-trip time is at most
-``ci_target_pct`` % of its mean, or ``max_trials`` is reached; ``trials=N``
-runs exactly N.
+Estimates: sample mean and the normal-theory 95 % half-width 1.96 s / sqrt(n),
+over trips (the trips of a chain are serially dependent through those left
+behind; at loads the group carries the dependence is short, which is why the
+chains are long). Whole chunks are added until the half-width of the
+round-trip time is at most ``ci_target_pct`` % of its mean, or ``max_trials``
+is reached; ``trials=N`` runs exactly N.
 """
 from __future__ import annotations
 
@@ -26,10 +31,16 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from . import _trip_kernel as K
+from ._chain_kernel import ChainSums
+from ._chain_kernel import chain_trips as chain_kernel
 from .building import Building, LiftGroup, Traffic
-from .classical import average_waiting_time_s, demand_calculation
+from .classical import (average_waiting_time_s, demand_calculation, design_passengers, is_uppeak,
+                        traffic_mix_name)
 from .passengers import AliasTable, od_alias_table, od_matrix, passenger_counts
 from .schedule import TripOut, TripStream, TripTiming, trip_timing
+from .threads import run_chains
+from .stream import (CHAIN_TRIPS, CHUNK_TRIPS, PART_TRIPS, adaptive_sizes, chunk_sizes,
+                     count_table, run_stream)
 
 Z95 = 1.959963984540054   # two-sided 95 % normal quantile
 
@@ -42,6 +53,12 @@ class Estimate:
     ci95: float
     std: float
     n: int
+
+    @classmethod
+    def of_moments(cls, n: int, mean: float, m2: float) -> "Estimate":
+        """From a count, a mean and the sum of squared deviations."""
+        std = math.sqrt(max(m2, 0.0) / (n - 1)) if n > 1 else 0.0
+        return cls(float(mean), Z95 * std / math.sqrt(n) if n > 1 else math.inf, std, int(n))
 
     @classmethod
     def of(cls, x) -> "Estimate":
@@ -92,11 +109,7 @@ class PassengerSampler:
         """(origins, destinations) of the passengers that ``uniforms`` pick."""
         orig = np.empty(uniforms.size, dtype=np.int64)
         dest = np.empty(uniforms.size, dtype=np.int64)
-        blocks = _blocks(uniforms.size // 8)
-        if blocks == 1:                   # too few to be worth the threads
-            K.sample_cells(uniforms, self.alias, orig, dest)
-        else:
-            K.sample_cells_parallel(uniforms, self.alias, blocks, orig, dest)
+        K.sample_cells(uniforms, self.alias, orig, dest)
         return orig, dest
 
     def draw(self, rng: np.random.Generator, mean_passengers: float, n_trials: int,
@@ -106,53 +119,128 @@ class PassengerSampler:
         orig, dest = self.cells(stream.uniforms)
         return orig, dest, stream.offsets
 
-    def sampled_trips(self, timing: TripTiming, stream: TripStream) -> TripSample:
-        """Time one car's trip per trial, sampling its passengers inside the kernel:
-        the same numbers as :meth:`draw` then :func:`time_trips`, faster. The one
-        helper through which every caller runs the one-car kernels."""
-        n = stream.offsets.size - 1
-        out = TripOut.empty(n)
-        kernel = K.uppeak_car_trips if self.lobby_origins_only else K.sampled_car_trips
-        kernel(stream, self.alias, timing, _blocks(n), out)
-        return TripSample(out.rtt_s, out.counts)
 
+@dataclass
+class TripSums:
+    """Running sums of a one-car run (from the chain kernels): what every estimate
+    is made of, with the round-trip time kept as a count, mean and sum of squared
+    deviations (merged chain by chain, a numerically stable form)."""
 
-def _blocks(n_trials: int) -> int:
-    import numba
-    return max(1, min(n_trials // 2000 + 1, 8 * numba.get_num_threads()))
+    n_levels: int
+    trips: int = 0
+    rtt_mean_s: float = 0.0
+    rtt_m2_s2: float = 0.0
+    count_sum: np.ndarray = None
+    count_sq: np.ndarray = None
+    left_trips: int = 0
+    arrivals: int = 0
+    waiting_end: int = 0
+    load_up: np.ndarray = None
+    load_down: np.ndarray = None
+
+    def __post_init__(self):
+        self.count_sum = np.zeros(K.N_COUNTS, dtype=object)
+        self.count_sq = np.zeros(K.N_COUNTS, dtype=object)
+        self.load_up = np.zeros(self.n_levels, dtype=np.int64)
+        self.load_down = np.zeros(self.n_levels, dtype=np.int64)
+
+    def add(self, chains: ChainSums) -> None:
+        """Merge a chunk's chains, in chain order."""
+        n = chains.trips.astype(float)
+        mean = chains.rtt_shift_s + chains.rtt_sum_s / n
+        m2 = np.maximum(chains.rtt_sq_s2 - chains.rtt_sum_s ** 2 / n, 0.0)
+        total = n.sum()
+        chunk_mean = float(np.sum(n * mean) / total)
+        chunk_m2 = float(np.sum(m2) + np.sum(n * (mean - chunk_mean) ** 2))
+        both = self.trips + total
+        delta = chunk_mean - self.rtt_mean_s
+        self.rtt_m2_s2 += chunk_m2 + delta * delta * self.trips * total / both
+        self.rtt_mean_s += delta * total / both
+        self.trips = int(both)
+        self.count_sum += chains.count_sum.sum(axis=0).astype(object)
+        self.count_sq += chains.count_sq.sum(axis=0).astype(object)
+        self.left_trips += int(chains.left_trips.sum())
+        self.arrivals += int(chains.arrivals.sum())
+        self.waiting_end += int(chains.waiting_end.sum())
+        self.load_up += chains.load_up.sum(axis=0)
+        self.load_down += chains.load_down.sum(axis=0)
+
+    def rtt(self) -> "Estimate":
+        return Estimate.of_moments(self.trips, self.rtt_mean_s, self.rtt_m2_s2)
+
+    def column(self, which: int) -> "Estimate":
+        n = self.trips
+        s, q = self.count_sum[which], self.count_sq[which]
+        return Estimate.of_moments(n, float(s) / n, float(q - s * s / n) if n else 0.0)
+
+    @property
+    def busiest_stretch_load(self) -> float:
+        """Mean load on the busiest stretch of the trip [persons]."""
+        return float(max(self.load_up.max(), self.load_down.max())) / self.trips
 
 
 def time_trips(building: Building, group: LiftGroup, orig, dest, offsets,
                timing: TripTiming | None = None) -> TripSample:
-    """Time one car's trip per trial for given passengers (see :class:`PassengerSampler`)."""
+    """Time one car's trip per trial for given passengers, each trip on its own (no
+    carry-over; see :class:`PassengerSampler`)."""
     timing = trip_timing(building, group) if timing is None else timing
     n = offsets.size - 1
     out = TripOut.empty(n)
     K.given_car_trips(np.ascontiguousarray(orig, dtype=np.int64),
                       np.ascontiguousarray(dest, dtype=np.int64),
-                      np.ascontiguousarray(offsets, dtype=np.int64), timing, _blocks(n), out)
+                      np.ascontiguousarray(offsets, dtype=np.int64), timing, out)
     return TripSample(out.rtt_s, out.counts)
+
+
+def chain_sums(sampler: PassengerSampler, timing: TripTiming, stream: TripStream,
+               chain_trips: int = CHAIN_TRIPS, sample: TripOut | None = None,
+               threaded: bool = True) -> ChainSums:
+    """The chain kernel on one part of the stream: the one helper through which every
+    caller runs it. With ``sample`` (a :class:`TripOut` as long as the part) each
+    trip's own figures are written there too; ``threaded``: its chains split between
+    the worker threads (off inside a worker)."""
+    n = stream.offsets.size - 1
+    sums = ChainSums.empty(max(1, -(-n // chain_trips)), sampler.n_levels)
+    keep = sample is not None
+    out = sample if keep else _NO_SAMPLE
+    run_chains(chain_kernel, sums.trips.size, stream, sampler.alias, timing, int(chain_trips),
+               sampler.lobby_origins_only, sums, keep, out, threaded=threaded)
+    return sums
+
+
+_NO_SAMPLE = TripOut(np.empty(0), np.empty((0, K.N_COUNTS), dtype=np.int64))
 
 
 @dataclass(frozen=True)
 class MonteCarloResult:
-    """Monte Carlo estimates of one car's round trip at one mean load."""
+    """Monte Carlo estimates of one car's round trip at one mean load.
+
+    ``passengers_per_trip`` is the offered load: the mean of the passengers
+    arriving during a car's interval (its trip's new passengers). Those left
+    behind wait for the next car, so the carried load (``passengers_carried``)
+    falls short of the offered load only while the queue grows.
+    """
 
     building: str
     cars: int
     rated_load_persons: int
+    design_load_persons: float
     total_population: float
     passenger_model: str
+    traffic_mix: str
     passengers_per_trip: float          # mean passengers offered (asked for)
     round_trip_time: Estimate
     stops: Estimate
     highest_reversal_floor: Estimate
     lowest_reversal_floor: Estimate
-    passengers_offered: Estimate
+    passengers_waiting: Estimate        # waiting when a car leaves: new + carried over
     passengers_carried: Estimate
     peak_car_load: Estimate
+    car_load_persons: float             # mean load on the busiest stretch
     left_behind_share: float
     left_behind_per_trip: float
+    passengers_arrived: int
+    passengers_still_waiting: int
     trials: int
     seed: int
     mode: str = "given load"
@@ -168,46 +256,78 @@ class MonteCarloResult:
         return self.round_trip_time.mean / self.cars
 
     @property
+    def offered_per_trip(self) -> float:
+        """Mean passengers who arrived per trip (measured)."""
+        return self.passengers_arrived / self.trials
+
+    @property
     def handling_capacity_persons_5min(self) -> float:
         """300 s x passengers carried per trip / interval; 0 when nobody is carried (an empty
         car with zero door times has a zero round trip)."""
         carried = self.passengers_carried.mean
         return 300.0 * carried / self.interval_s if carried > 0 else 0.0
 
+    @property
+    def waiting_time_s(self) -> float | None:
+        """The up-peak waiting-time estimate, for up-peak traffic the group carries."""
+        if self.traffic_mix != "up-peak" or self.saturated:
+            return None
+        return average_waiting_time_s(self.interval_s, self.car_load_persons / self.rated_load_persons)
+
+    def notes(self) -> list[str]:
+        return [WAITING_TIME_NOTE] if self.waiting_time_s is None else []
+
     def to_dict(self) -> dict:
         hc = self.handling_capacity_persons_5min
-        load = self.passengers_carried.mean / self.rated_load_persons
+        offered_hc = (300.0 * self.offered_per_trip / self.interval_s
+                      if self.offered_per_trip > 0 else 0.0)
         return {
             "building": self.building,
             "mode": self.mode,
+            "traffic_mix": self.traffic_mix,
             "passenger_model": self.passenger_model,
             "round_trip_time_s": self.round_trip_time.mean,
             "ci95_s": self.round_trip_time.ci95,
             "interval_s": self.interval_s,
             "passengers_per_trip": self.passengers_per_trip,
+            "passengers_offered_per_trip": self.offered_per_trip,
             "passengers_carried_per_trip": self.passengers_carried.mean,
+            "passengers_carried_ci95": self.passengers_carried.ci95,
+            "passengers_waiting_per_trip": self.passengers_waiting.mean,
             "expected_stops": self.stops.mean,
             "expected_stops_ci95": self.stops.ci95,
             "highest_reversal_floor": self.highest_reversal_floor.mean,
             "highest_reversal_floor_ci95": self.highest_reversal_floor.ci95,
             "lowest_reversal_floor": self.lowest_reversal_floor.mean,
             "lowest_reversal_floor_ci95": self.lowest_reversal_floor.ci95,
+            "car_load_persons": self.car_load_persons,
             "peak_car_load_persons": self.peak_car_load.mean,
             "peak_car_load_ci95": self.peak_car_load.ci95,
+            "design_load_persons": self.design_load_persons,
             "handling_capacity_persons_5min": hc,
             "handling_capacity_pct_5min": 100.0 * hc / self.total_population,
-            "car_load_pct": 100.0 * load,
-            "average_waiting_time_s": average_waiting_time_s(self.interval_s, load),
+            "offered_handling_capacity_pct_5min": 100.0 * offered_hc / self.total_population,
+            "car_load_pct": 100.0 * self.car_load_persons / self.rated_load_persons,
+            "average_waiting_time_s": self.waiting_time_s,
             "saturated": self.saturated,
             "demand_pct_5min": self.demand_pct_5min,
             "left_behind_share": self.left_behind_share,
             "left_behind_per_trip": self.left_behind_per_trip,
+            "passengers_arrived": self.passengers_arrived,
+            "passengers_carried": int(round(self.passengers_carried.mean * self.trials)),
+            "passengers_still_waiting": self.passengers_still_waiting,
             "trials": self.trials,
             "iterations": self.iterations,
             "converged": self.converged,
             "trace": [dict(t) for t in self.trace],
+            "notes": self.notes(),
             "seed": self.seed,
         }
+
+
+WAITING_TIME_NOTE = ("The waiting time is left out: the up-peak waiting-time estimate holds only "
+                     "for up-peak traffic at a load the group carries. The peak simulation gives "
+                     "waiting times.")
 
 
 def check_run_options(trials, ci_target_pct, max_trials, threads) -> None:
@@ -221,35 +341,20 @@ def check_run_options(trials, ci_target_pct, max_trials, threads) -> None:
         raise ValueError(f"threads = {threads!r}: must be a whole number >= 1")
 
 
-def run_until(chunk, trials: int | None, ci_target_pct: float, max_trials: int,
-              first_chunk: int = 4000):
-    """Call ``chunk(n) -> (rtt, payload)`` until the RTT interval is tight enough.
-
-    ``rtt`` holds one round-trip time per trial, or one column per estimate
-    (trials x columns), every column of which must meet the target. With
-    ``trials`` set, one call of exactly that many. Otherwise chunks are added
-    until 1.96 s/sqrt(n) <= ci_target_pct/100 x mean or ``max_trials``. The
-    chunk sizes depend only on the results so far, so a run is reproducible
-    from its seed. Returns the list of payloads.
-    """
-    if trials is not None:
-        return [chunk(trials)[1]]
-    payloads, rtts = [], []
-    n = 0
-    want = min(first_chunk, max_trials)
-    while True:
-        rtt, payload = chunk(want)
-        payloads.append(payload)
-        rtts.append(np.asarray(rtt, dtype=float).reshape(want, -1))
-        n += want
-        x = np.concatenate(rtts)
-        mean = np.abs(x.mean(axis=0))
-        half = Z95 * x.std(axis=0, ddof=1) / math.sqrt(n)
-        target = ci_target_pct / 100.0 * mean
-        if np.all(half <= target) or n >= max_trials:
-            return payloads
-        needed = math.ceil(n * float(np.max((half / np.maximum(target, 1e-300)) ** 2)) * 1.1)
-        want = int(min(max(needed - n, 1000), max_trials - n))
+def check_passengers(passengers, group: LiftGroup, building: Building | None = None,
+                     traffic: Traffic | None = None, what: str = "passengers") -> None:
+    """A mean load per car between 0 and what a car can carry: the rated load on the
+    busiest stretch of the trip (up-peak: the rated load). A higher one could never
+    be carried: the queue would grow without end."""
+    if not (passengers >= 0 and math.isfinite(passengers)):
+        raise ValueError(f"{what} = {passengers!r}: must be a finite number >= 0")
+    top = float(group.rated_load_persons)
+    if building is not None and not is_uppeak(traffic):
+        top = design_passengers(building, group, traffic) / group.capacity_factor
+    if passengers > top * (1.0 + 1e-12):
+        raise ValueError(f"{what} = {passengers:g}: must be at most {top:.4g} persons per trip, "
+                         f"where the busiest stretch of the trip carries the rated load "
+                         f"{group.rated_load_persons} (a car cannot carry more on average)")
 
 
 def with_threads(threads, fn):
@@ -264,84 +369,126 @@ def with_threads(threads, fn):
         numba.set_num_threads(old)
 
 
+def chunk_plan(trials: int | None, max_trials: int, chunk: int):
+    """The chunk sizes of a run: exactly ``trials``, or whole chunks up to the cap."""
+    return chunk_sizes(trials, chunk) if trials is not None else adaptive_sizes(chunk, max_trials)
+
+
+def meets_target(estimates, ci_target_pct: float) -> bool:
+    """Every estimate's 95 % half-width within ``ci_target_pct`` % of its mean."""
+    return all(e.n > 1 and e.ci95 <= ci_target_pct / 100.0 * abs(e.mean) for e in estimates)
+
+
 def simulate_trips(building: Building, group: LiftGroup, passengers: float, *,
                    traffic: Traffic | None = None, poisson: bool = True,
                    trials: int | None = None, ci_target_pct: float = 0.5,
                    max_trials: int = 2_000_000, seed: int = 0, threads: int | None = None,
                    keep_sample: bool = False) -> MonteCarloResult:
-    """Monte Carlo estimate of one car's round trip at a mean of ``passengers`` per trip.
+    """Monte Carlo estimate of one car's round trips at a mean of ``passengers`` per trip.
+
+    Trips follow one another in chains (see :mod:`roundtrip.stream`): whoever a trip
+    leaves behind waits for the next, so nobody is dropped, and the figures are
+    running sums over chunks of bounded size.
 
     Parameters
     ----------
     passengers : float
-        Mean passengers offered per trip [persons], >= 0.
+        Mean passengers arriving per trip (per car interval) [persons], 0 ... rated load.
     traffic : Traffic, optional
         Traffic mix (its shares); None is up-peak (all incoming).
     poisson : bool
         Poisson passenger counts (True) or fixed counts (False; a real mean mixes
         the two nearest integers).
     trials : int, optional
-        Run exactly this many trials instead of stopping on ``ci_target_pct``.
+        Run exactly this many trips instead of stopping on ``ci_target_pct``.
     ci_target_pct : float
-        Stop when the 95 % half-width of the RTT is at most this % of its mean.
+        Stop, after a whole chunk, when the 95 % half-width of the RTT is at most this
+        % of its mean.
     max_trials : int
-        Trial cap of the adaptive run.
+        Trip cap of the adaptive run.
     seed : int
-        Seed of the numpy PCG64 generator; the same seed gives the same numbers.
+        Seed of the stream; the same seed gives the same numbers.
     threads : int, optional
         Numba threads for the kernels (default: numba's setting); results do
         not depend on it.
+    keep_sample : bool
+        Keep every trip's own figures (memory grows with the trips).
     """
-    if not (passengers >= 0 and math.isfinite(passengers)):
-        raise ValueError(f"passengers = {passengers!r}: must be a finite number >= 0")
+    check_passengers(passengers, group, building, traffic)
     check_run_options(trials, ci_target_pct, max_trials, threads)
     sampler = PassengerSampler(building, traffic)
     timing = trip_timing(building, group)
-    rng = np.random.default_rng(seed)
+    counts = count_table(passengers, poisson)
+    sums = TripSums(sampler.n_levels)
+    kept = []
 
-    def chunk(n):
-        s = sampler.sampled_trips(timing, sampler.uniforms(rng, passengers, n, poisson))
-        return s.rtt_s, s
+    def work(stream):
+        sample = TripOut.empty(stream.offsets.size - 1) if keep_sample else None
+        return chain_sums(sampler, timing, stream, CHAIN_TRIPS, sample, threaded=False), sample
 
-    samples = with_threads(threads, lambda: run_until(chunk, trials, ci_target_pct, max_trials))
-    sample = TripSample(np.concatenate([s.rtt_s for s in samples]),
-                        np.concatenate([s.counts for s in samples]))
-    return _result(building, group, passengers, poisson, sample, seed, keep_sample)
+    def merge(results) -> bool:
+        for part, sample in results:
+            sums.add(part)
+            if keep_sample:
+                kept.append(sample)
+        return trials is None and meets_target([sums.rtt()], ci_target_pct)
+
+    with_threads(threads, lambda: run_stream(seed, counts, chunk_plan(trials, max_trials,
+                                                                      CHUNK_TRIPS),
+                                             PART_TRIPS, work, merge))
+    sample = None
+    if keep_sample:
+        sample = TripSample(np.concatenate([s.rtt_s for s in kept]),
+                            np.concatenate([s.counts for s in kept]))
+    return _result(building, group, traffic, passengers, poisson, sums, seed, sample)
 
 
-def _result(building, group, passengers, poisson, sample: TripSample, seed, keep_sample,
+def _result(building, group, traffic, passengers, poisson, sums: TripSums, seed, sample,
             **extra) -> MonteCarloResult:
-    left = sample.column(K.LEFT_BEHIND)
+    carried = sums.column(K.BOARDED)
+    car_load = sums.busiest_stretch_load
+    grows = sums.arrivals > 0 and carried.mean * sums.trips < 0.99 * sums.arrivals
+    saturated = extra.pop("saturated", None)
+    if saturated is None:            # given load: above the design load, or the queue grows
+        saturated = bool(car_load > group.design_load_persons * 1.001 or grows)
     return MonteCarloResult(
         building=building.name, cars=group.cars, rated_load_persons=group.rated_load_persons,
+        design_load_persons=group.design_load_persons,
         total_population=building.total_population,
         passenger_model="poisson" if poisson else "fixed",
+        traffic_mix=traffic_mix_name(traffic),
         passengers_per_trip=float(passengers),
-        round_trip_time=Estimate.of(sample.rtt_s),
-        stops=Estimate.of(sample.column(K.STOPS)),
-        highest_reversal_floor=Estimate.of(sample.column(K.HIGHEST)),
-        lowest_reversal_floor=Estimate.of(sample.column(K.LOWEST)),
-        passengers_offered=Estimate.of(sample.column(K.OFFERED)),
-        passengers_carried=Estimate.of(sample.column(K.BOARDED)),
-        peak_car_load=Estimate.of(sample.column(K.PEAK_LOAD)),
-        left_behind_share=float(np.mean(left > 0)),
-        left_behind_per_trip=float(np.mean(left)),
-        trials=int(sample.rtt_s.size), seed=int(seed),
-        sample=sample if keep_sample else None, **extra)
+        round_trip_time=sums.rtt(),
+        stops=sums.column(K.STOPS),
+        highest_reversal_floor=sums.column(K.HIGHEST),
+        lowest_reversal_floor=sums.column(K.LOWEST),
+        passengers_waiting=sums.column(K.OFFERED),
+        passengers_carried=carried,
+        peak_car_load=sums.column(K.PEAK_LOAD),
+        car_load_persons=car_load,
+        left_behind_share=sums.left_trips / sums.trips,
+        left_behind_per_trip=sums.column(K.LEFT_BEHIND).mean,
+        passengers_arrived=sums.arrivals, passengers_still_waiting=sums.waiting_end,
+        trials=sums.trips, seed=int(seed), saturated=saturated, sample=sample, **extra)
 
 
 def simulate_demand(building: Building, group: LiftGroup, traffic: Traffic, *,
                     poisson: bool = True, trials: int | None = None, ci_target_pct: float = 0.5,
                     max_trials: int = 2_000_000, seed: int = 0, threads: int | None = None,
                     max_iterations: int = 40) -> MonteCarloResult:
-    """Monte Carlo round trip at the load the demand sets: the fixed point P = lambda RTT(P) / L.
+    """Monte Carlo round trips at the load the demand sets: the fixed point on carried
+    passengers, C(P) = lambda RTT(P) / L.
 
-    Start from the classical demand-mode RTT; then repeat P = lambda RTT / L,
-    Monte Carlo at P (same seed each time: common random numbers), new RTT,
-    until the change of RTT is within its 95 % half-width. If at the design
-    load (capacity_factor x rated load) the demand would still need more,
-    lambda RTT(P_design) / L > P_design, the group is saturated and the
-    estimate is given at the design load.
+    P is the offered load (passengers arriving per car interval) and C(P) the
+    passengers carried per trip (below P only while the queue grows). The design
+    load limits the car load, the mean load on the busiest stretch of the trip
+    (up-peak: the passengers carried): first the load P_d at which it reaches the
+    design load is found (:func:`roundtrip.classical.design_passengers`, corrected
+    by the Monte Carlo for a mixed traffic). When the handling capacity carried
+    there falls short of the demand the group is *saturated* and the figures are
+    given at P_d. Otherwise, from the classical demand-mode estimate, repeat
+    P <- P lambda RTT(P) / (L C(P)) (the same seed each time: common random
+    numbers) until the RTT changes by less than its 95 % half-width.
 
     ``max_iterations`` (a whole number >= 1) caps the Monte Carlo steps after
     the classical start; when the last of them has not settled, the result is
@@ -351,28 +498,45 @@ def simulate_demand(building: Building, group: LiftGroup, traffic: Traffic, *,
             and max_iterations >= 1):
         raise ValueError(f"max_iterations = {max_iterations!r}: must be a whole number >= 1")
     lam = traffic.arrival_rate_persons_per_s(building)
-    p_design = group.design_load_persons
+    L = group.cars
+    design = group.design_load_persons
     run = dict(traffic=traffic, poisson=poisson, trials=trials, ci_target_pct=ci_target_pct,
                max_trials=max_trials, seed=seed, threads=threads)
+    p_top = design_passengers(building, group, traffic) / group.capacity_factor
+    p_design = min(design_passengers(building, group, traffic), p_top)
     at_design = simulate_trips(building, group, p_design, **run)
-    trace = [{"passengers_per_trip": p_design, "round_trip_time_s": at_design.round_trip_time.mean,
-              "ci95_s": at_design.round_trip_time.ci95}]
-    if lam * at_design.round_trip_time.mean / group.cars > p_design:
-        return replace(at_design, mode="demand", saturated=True, iterations=1,
-                        trace=tuple(trace), demand_pct_5min=traffic.arrival_rate_pct_5min)
-    rtt = demand_calculation(building, group, traffic, poisson).round_trip_time_s
+    trace = [_step(p_design, at_design)]
+    if not is_uppeak(traffic):
+        for _ in range(4):           # the car load at P_d, as the Monte Carlo has it
+            load = at_design.car_load_persons
+            if load <= 0 or abs(load - design) <= 0.002 * design:
+                break
+            p_design = min(p_design * design / load, p_top)
+            at_design = simulate_trips(building, group, p_design, **run)
+            trace.append(_step(p_design, at_design))
+    demand_5min = 300.0 * lam
+    if at_design.handling_capacity_persons_5min < demand_5min:
+        return replace(at_design, mode="demand", saturated=True, iterations=len(trace),
+                       trace=tuple(trace), demand_pct_5min=traffic.arrival_rate_pct_5min)
+    p = min(demand_calculation(building, group, traffic, poisson).passengers_per_trip, p_design)
+    rtt = None
     result = None
     converged = False
     for _ in range(max_iterations):
-        p = min(lam * rtt / group.cars, p_design)
         result = simulate_trips(building, group, p, **run)
+        trace.append(_step(p, result))
         new = result.round_trip_time.mean
-        trace.append({"passengers_per_trip": p, "round_trip_time_s": new,
-                      "ci95_s": result.round_trip_time.ci95})
-        if abs(new - rtt) <= result.round_trip_time.ci95:
+        if rtt is not None and abs(new - rtt) <= result.round_trip_time.ci95:
             converged = True
             break
         rtt = new
+        carried = max(result.passengers_carried.mean, 1e-9)
+        p = min(p * lam * new / (L * carried), p_design) if p > 0 else lam * new / L
     return replace(result, mode="demand", saturated=False, iterations=len(trace),
-                    trace=tuple(trace), converged=converged,
-                    demand_pct_5min=traffic.arrival_rate_pct_5min)
+                   trace=tuple(trace), converged=converged,
+                   demand_pct_5min=traffic.arrival_rate_pct_5min)
+
+
+def _step(p: float, r: MonteCarloResult) -> dict:
+    return {"passengers_per_trip": p, "passengers_carried_per_trip": r.passengers_carried.mean,
+            "round_trip_time_s": r.round_trip_time.mean, "ci95_s": r.round_trip_time.ci95}

@@ -14,12 +14,12 @@ from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from allocation.ordering import destination_order, equal_cut
-from allocation.registry import RULES, car_limit, get_rule, scratch_size
+from allocation.registry import RULES, RuleParams, car_limit, get_rule, scratch_size
 from allocation.sectors import (band_round_trip_s, floor_bands, sectors_by_floor_counts,
                                 sectors_in_order)
 from allocation.contract import empty_cars
 from batchrounds import _kernel as G
-from batchrounds.montecarlo import compare_rules
+from batchrounds.montecarlo import compare_rules, sub_batch_sizes
 from experiments.cli import main
 from roundtrip import schedule as K
 from roundtrip.building import Building, LiftGroup, Traffic
@@ -28,7 +28,7 @@ from roundtrip.passengers import AliasTable
 from roundtrip.schedule import TripStream, trip_timing
 
 from .mc_power import Z90, assert_unbiased
-from .reference_trip import reference_trip
+from .reference_trip import reference_rounds, reference_trip
 
 GROUP = LiftGroup(cars=4, rated_load_persons=8, rated_speed_mps=1.6, acceleration_mps2=1.0,
                   jerk_mps3=1.5, door_open_s=1.8, door_close_s=2.9, start_delay_s=0.5,
@@ -91,61 +91,78 @@ def test_every_passenger_allocated_once_within_the_car_limit(bp, k, rule):
     assert limit <= group.rated_load_persons
 
 
-def check_group_kernel(building, group, pairs, k, rule):
-    """Run the group kernel on exactly this batch and check each car against the plain
-    trip model of the passengers the plain rule gives it (see the test below)."""
+def identity_alias(o, d):
+    """An alias table whose cell i is passenger i; uniforms (i + 0.5) / n then make the
+    kernel draw exactly these passengers, in this order."""
+    n = max(len(o), 1)
+    return AliasTable(np.ones(n), np.arange(n), np.concatenate((o, [0]))[:n].astype(np.int64),
+                      np.concatenate((d, [1]))[:n].astype(np.int64))
+
+
+def check_group_rounds(building, group, pairs, k, rule, offsets, lobby_only=False):
+    """Run the group kernel on exactly these passengers, cut into rounds of the group's cars
+    by ``offsets``, and check it round by round and car by car against the plain twin of
+    its model (tests/reference_trip.py::reference_rounds: conventional loading car by car
+    gives each car's room, the rule shares the batch, every car is timed by the plain trip
+    model, whoever a car cannot take waits) to the bit; no car is above rated load, the
+    route ascends up, descends down, and nobody is dropped."""
     L, rated = group.cars, group.rated_load_persons
+    rounds = (len(offsets) - 1) // L
     o = np.array([p[0] for p in pairs], dtype=np.int64).reshape(-1)
     d = np.array([p[1] for p in pairs], dtype=np.int64).reshape(-1)
-    offsets = np.array([0, len(pairs)], dtype=np.int64)
     r = get_rule(rule)
-    params = r.params(building, group, k, max(len(pairs), 1) / L)
-    flight = flight_table_s(building, group)
-    out = G.GroupOut(np.empty((1, L)), np.empty((1, L, K.N_COUNTS), np.int64),
-                     np.empty(1, np.int64))
-    rtt, counts, unalloc = out
-    # an alias table whose cell i is passenger i, and uniforms that pick cell i in turn,
-    # make the kernel draw exactly this batch
-    n_cells = max(len(pairs), 1)
-    u = (np.arange(len(pairs)) + 0.5) / n_cells
-    alias = AliasTable(np.ones(n_cells), np.arange(n_cells), np.concatenate((o, [0]))[:n_cells],
-                       np.concatenate((d, [1]))[:n_cells])
-    G.group_trips(r.compiled, TripStream(u, offsets), alias, G.GroupLayout(L, k),
-                  trip_timing(building, group), params.table, 1, out)
-    # rebuild the allocation with the plain rule, sub-batch by sub-batch
-    n = len(pairs)
-    fl = flight.tolist()
-    left = 0
-    for c0 in range(0, L, k):
-        kk = min(L, c0 + k) - c0
-        a, b = n * c0 // L, n * (c0 + kk) // L
-        fits = min(b - a, kk * rated)
-        left += b - a - fits
-        sub = pairs[a:a + fits]
-        cars = r.allocate(o[a:a + fits], d[a:a + fits], kk, car_limit(fits, kk, rated), params)
-        if b - a > fits:
-            assert np.all(counts[0, c0:c0 + kk, K.BOARDED] == rated)   # all open cars full
-        for j in range(kk):
-            mine = [p for p, c in zip(sub, cars) if c == j]
-            ref = reference_trip(mine, fl, rated, group.stop_overhead_s, group.transfer_in_s,
-                                 group.transfer_out_s)
-            assert rtt[0, c0 + j] == ref.time_s, (rule, c0 + j)
-            # the kernel's own counts, each against the twin's (stops, highest and lowest
-            # floor, boarded, peak load never above rated load, left behind, offered)
-            assert list(counts[0, c0 + j]) == [ref.stops, ref.highest, ref.lowest, ref.boarded,
-                                               ref.peak_load, ref.left_behind, len(mine)]
-            assert counts[0, c0 + j, K.PEAK_LOAD] <= rated
-    assert unalloc[0] == left                 # the latest arrivals beyond full cars
+    table = r.table(building, group, sub_batch_sizes(L, k), max(len(pairs), 1) / L)
+    timing = trip_timing(building, group)
+    out = G.GroupOut.empty(rounds, L, 1, building.floors + 1)
+    u = (np.arange(len(pairs)) + 0.5) / max(len(pairs), 1)
+    G.group_trips(r.compiled, TripStream(u, np.asarray(offsets, dtype=np.int64)),
+                  identity_alias(o, d), G.GroupLayout(L, k, rounds), timing, table, lobby_only,
+                  out, 0, 1)
+
+    def allocate(origins, destinations, rooms):
+        cars = empty_cars(len(rooms), 0)
+        cars["room"] = rooms
+        return r.allocate(origins, destinations, len(rooms), params=RuleParams(table, timing),
+                          cars=cars)
+
+    arrivals = [[list(zip(o[offsets[t * L + c]:offsets[t * L + c + 1]].tolist(),
+                          d[offsets[t * L + c]:offsets[t * L + c + 1]].tolist()))
+                 for c in range(L)] for t in range(rounds)]
+    fl = flight_table_s(building, group).tolist()
+    twin, waiting = reference_rounds(arrivals, k, allocate, fl, rated, group.stop_overhead_s,
+                                     group.transfer_in_s, group.transfer_out_s)
+    assert out.waiting_end[0] == len(waiting)
+    assert not out.unallocated.any()
+    for t in range(rounds):
+        for c, (ref, offered, left) in enumerate(twin[t]):
+            assert out.rtt_s[t, c] == ref.time_s, (rule, t, c)
+            assert list(out.counts[t, c]) == [ref.stops, ref.highest, ref.lowest, ref.boarded,
+                                              ref.peak_load, left, offered]
+            assert ref.peak_load <= rated
+            route = ref.route[1:-1]
+            top = route.index(max(route)) if route else 0
+            assert route[:top + 1] == sorted(route[:top + 1])
+            assert route[top:] == sorted(route[top:], reverse=True)
+    # nobody is dropped: every passenger who arrived was carried or is still waiting
+    carried = int(out.counts[:, :, K.BOARDED].sum())
+    assert carried + out.waiting_end[0] == len(pairs)
 
 
 @settings(max_examples=60)
-@given(bp=batches(max_floors=63), k=st.integers(1, 4), rule=st.sampled_from(PLAIN_RULES))
-def test_group_kernel_times_each_car_as_the_trip_model_and_never_overloads(bp, k, rule):
-    """On 1 ... 63 floors: each car's time and counts equal the plain trip model's of the
-    passengers the plain rule gives it (exactly); no car is above rated load; a
-    passenger is not allocated only when every open car is full."""
+@given(bp=batches(max_floors=63), k=st.integers(1, 4), rule=st.sampled_from(PLAIN_RULES),
+       data=st.data())
+def test_group_kernel_equals_the_plain_twin_round_by_round(bp, k, rule, data):
+    """On 1 ... 63 floors, with several rounds in a chain, uneven sub-batches and
+    passengers carried over: the group kernel equals the plain twin of its model to the
+    bit (see :func:`check_group_rounds`)."""
     building, pairs = bp
-    check_group_kernel(building, replace(GROUP, cars=k * 2, rated_load_persons=3), pairs, k, rule)
+    L = data.draw(st.integers(k, 2 * k + 1))
+    rounds = data.draw(st.integers(1, 3))
+    group = replace(GROUP, cars=L, rated_load_persons=3)
+    cuts = sorted(data.draw(st.lists(st.integers(0, len(pairs)), min_size=rounds * L - 1,
+                                     max_size=rounds * L - 1)))
+    lobby_only = all(p[0] == 0 for p in pairs) and data.draw(st.booleans())
+    check_group_rounds(building, group, pairs, k, rule, [0] + cuts + [len(pairs)], lobby_only)
 
 
 def tall_building(floors: int) -> Building:
@@ -161,14 +178,15 @@ def tall_building(floors: int) -> Building:
 def test_group_kernel_on_tall_buildings(floors, rule):
     """Fixed cases on 17, 32, 48 and 63 floors with unequal rises: a batch bound for every
     floor, one from every floor, and one across the building, each checked car by car
-    against the plain trip model (as the property test above)."""
+    against the plain twin (as the property test above)."""
     b = tall_building(floors)
     g = replace(GROUP, cars=6, rated_load_persons=16, rated_speed_mps=4.0)
     up = [(0, f) for f in range(floors, 0, -1)]
     down = [(f, 0) for f in range(1, floors + 1)]
     across = [(f, floors + 1 - f) for f in range(1, floors + 1) if 2 * f != floors + 1]
     for pairs, k in ((up, 6), (up, 4), (down, 3), (across + up[:9], 6)):
-        check_group_kernel(b, g, pairs, k, rule)
+        n = len(pairs)                        # one round, each car's arrivals an equal share
+        check_group_rounds(b, g, pairs, k, rule, [n * c // g.cars for c in range(g.cars + 1)])
 
 
 @settings(max_examples=80)
@@ -210,6 +228,31 @@ def test_sectors_from_floor_counts_equals_sectors_one_by_one(bp, k, limit):
     assert done
     assert np.array_equal(one_by_one, by_counts)
     assert np.array_equal(get_rule("sectors").allocate(o, d, k, limit, params), one_by_one)
+
+
+@settings(max_examples=100)
+@given(bp=batches(lobby_only=True), k=st.integers(1, 6), data=st.data())
+def test_fewest_stops_at_the_lobby_equals_the_rule_as_stated(bp, k, data):
+    """The lobby shortcut of `fewest-stops` (a bit mask of cars per floor) gives every
+    passenger the car that the rule as stated gives them (each passenger in arrival
+    order, every car weighed on new stops, load, rise), whatever the cars' rooms, loads
+    and the stops they are already due to make."""
+    from allocation.fewest_stops import fewest_stops_at_lobby, fewest_stops_in_order
+    building, pairs = bp
+    n_floors = building.floors
+    o = np.zeros(len(pairs), np.int64)
+    d = np.array([p[1] for p in pairs], dtype=np.int64).reshape(-1)
+    cars = empty_cars(k, 0)
+    for c in range(k):
+        cars[c]["room"] = data.draw(st.integers(0, 12))
+        cars[c]["load"] = data.draw(st.integers(0, 5))
+        cars[c]["up_stops"] = data.draw(st.integers(0, (1 << (n_floors + 1)) - 1))
+        cars[c]["down_stops"] = data.draw(st.integers(0, (1 << (n_floors + 1)) - 1))
+    stated = np.full(len(pairs), -7, np.int64)
+    shortcut = np.full(len(pairs), -7, np.int64)
+    fewest_stops_in_order(o, d, cars, np.zeros(scratch_size(len(pairs), k), np.int64), stated)
+    fewest_stops_at_lobby(d, cars, np.zeros(scratch_size(len(pairs), k), np.int64), shortcut)
+    assert np.array_equal(stated, shortcut)
 
 
 @settings(max_examples=80)
@@ -464,7 +507,7 @@ def test_sorted_with_all_cars_open_matches_exact_enumeration():
         exact["rtt"] += prob * sum(t.time_s for t in trips) / 2
         exact["stops"] += prob * sum(t.stops for t in trips) / 2
         exact["high"] += prob * sum(t.highest for t in trips) / 2
-    c = compare_rules(b, g, ["sorted"], 2, poisson=False, trials=120_000, seed=17)
+    c = compare_rules(b, g, ["sorted"], 2, poisson=False, trials=120_000, seed=17, keep_sample=True)
     s = c.result("sorted").sample
     for name, x in (("rtt", s.trial_rtt_s), ("stops", s.trial_mean(K.STOPS)),
                     ("high", s.trial_mean(K.HIGHEST))):

@@ -97,11 +97,13 @@ def test_json_is_one_object_with_the_documented_keys(building_file, capsys):
 
 
 def test_json_demand_mode_equals_library(building_file, capsys):
-    # Plumbing: the JSON carries the library's demand-mode figures unchanged.
+    # Plumbing: the JSON carries the library's demand-mode figures unchanged (Poisson
+    # passenger counts by default, as every command).
     rc, out, _ = run(capsys, "calc", building_file, "--json")
     obj = json.loads(out)
     s = load_scenario(building_file)
-    r = demand_calculation(s.building, s.group, s.traffic)
+    r = demand_calculation(s.building, s.group, s.traffic, poisson=True)
+    assert obj["passenger_model"] == "poisson"
     assert obj["mode"] == "demand" and obj["saturated"] is False
     for key in JSON_KEYS - {"saturated"}:
         assert obj[key] == pytest.approx(getattr(r, key), rel=1e-12)
@@ -111,8 +113,8 @@ def test_json_demand_mode_equals_library(building_file, capsys):
 
 @pytest.mark.parametrize("poisson", [False, True], ids=["fixed", "poisson"])
 def test_json_given_load_equals_library(building_file, capsys, poisson):
-    # Plumbing: --passengers sets the car load, --poisson the passenger model.
-    argv = ["calc", building_file, "--passengers", "7.5", "--json"] + (["--poisson"] if poisson else [])
+    # Plumbing: --passengers sets the car load, --fixed / --poisson the passenger model.
+    argv = ["calc", building_file, "--passengers", "7.5", "--json", "--poisson" if poisson else "--fixed"]
     rc, out, _ = run(capsys, *argv)
     obj = json.loads(out)
     s = load_scenario(building_file)

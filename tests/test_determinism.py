@@ -98,7 +98,8 @@ def test_demand_fixed_point_same_on_one_and_two_threads():
 
 def test_comparison_same_on_one_and_two_threads():
     a, b = (compare_rules(OFFICE, replace(GROUP, rated_speed_mps=2.5), ["sorted", "sectors"],
-                          9.0, traffic=MIXED, trials=6000, seed=4, threads=t) for t in (1, 2))
+                          9.0, traffic=MIXED, trials=6000, seed=4, threads=t, keep_sample=True)
+                for t in (1, 2))
     for x, y in zip(a.results, b.results):
         assert np.array_equal(x.sample.rtt_s, y.sample.rtt_s)
         assert np.array_equal(x.sample.counts, y.sample.counts)

@@ -99,25 +99,37 @@ def test_size_finds_the_smallest_group_and_says_when_none(building_file, capsys)
 
 
 def brute_force_designs(scenario, rules, cars, loads, speeds, interval_max_s, hc_min_pct,
-                        trials, seed):
+                        trials, seed, cars_open=2):
     """The smallest design of every rule by brute force: every candidate of the grid run
-    (all rules on common batches, as `size` runs them), then, among those meeting both
-    criteria, the first in the stated order: fewest cars, then the smallest rated load,
-    then the slowest rated speed. With a fixed trial count a rule's figures do not
-    depend on which other rules share its batches."""
+    (all rules on common batches, as `size` runs them, with min(cars_open, cars) cars
+    open), then, among those meeting both criteria (the interval at the load the demand
+    sets, the handling capacity at the design load), the first in the stated order:
+    fewest cars, then the smallest rated load, then the slowest rated speed. With a fixed
+    trial count a rule's figures do not depend on which other rules share its batches."""
     import itertools
     from dataclasses import replace
 
     from batchrounds.montecarlo import compare_rules
+    from roundtrip.classical import design_passengers
+    from roundtrip.montecarlo import simulate_demand
+    demand = replace(scenario.traffic, arrival_rate_pct_5min=hc_min_pct)
     meets = {}
     for c, q, v in itertools.product(cars, loads, speeds):
         g = replace(scenario.group, cars=c, rated_load_persons=q, rated_speed_mps=v)
-        d = compare_rules(scenario.building, g, rules, g.design_load_persons,
-                          traffic=scenario.traffic, trials=trials, seed=seed).to_dict()
-        for r in d["rules"]:
-            meets[(r["rule"], c, q, v)] = (r["interval_s"] <= interval_max_s
+        run = dict(cars_open=min(cars_open, c), traffic=scenario.traffic, trials=trials,
+                   seed=seed)
+        full = compare_rules(scenario.building, g, rules,
+                             design_passengers(scenario.building, g, scenario.traffic),
+                             **run).to_dict()
+        p = simulate_demand(scenario.building, g, demand, trials=trials,
+                            seed=seed).passengers_per_trip
+        busy = {r["rule"]: r for r in compare_rules(scenario.building, g, rules, p,
+                                                    **run).to_dict()["rules"]}
+        for r in full["rules"]:
+            interval = busy[r["rule"]]["interval_s"]
+            meets[(r["rule"], c, q, v)] = (interval <= interval_max_s
                                            and r["handling_capacity_pct_5min"] >= hc_min_pct,
-                                           r["interval_s"], r["handling_capacity_pct_5min"])
+                                           interval, r["handling_capacity_pct_5min"])
     designs = {}
     for rule in rules:
         passing = [key[1:] for key, (ok, *_) in meets.items() if key[0] == rule and ok]
@@ -125,7 +137,7 @@ def brute_force_designs(scenario, rules, cars, loads, speeds, interval_max_s, hc
     return designs, meets
 
 
-@pytest.mark.parametrize("hc_min", [None, 25.0], ids=["file's demand", "25 %"])
+@pytest.mark.parametrize("hc_min", [None, 25.0], ids=["file's demand, 25 s", "25 %"])
 def test_size_is_the_first_passing_candidate_of_a_brute_force_search(building_file, capsys,
                                                                       hc_min):
     """`size --cars --loads --speeds` returns, for every rule, exactly the design a brute
@@ -138,16 +150,16 @@ def test_size_is_the_first_passing_candidate_of_a_brute_force_search(building_fi
     from roundtrip.inputfile import load_scenario
     argv = ["size", str(building_file), "--cars", "1:6", "--loads", "21,13", "--speeds",
             "2.5,1.6", "--trials", "400", "--seed", "2026", "--json"]
-    if hc_min is not None:
-        argv += ["--hc-min", str(hc_min)]
+    argv += ["--hc-min", str(hc_min)] if hc_min is not None else ["--interval-max", "25"]
     assert main(argv) == 0
     d = json.loads(capsys.readouterr().out)
     scenario = load_scenario(building_file)
     hc = 11.0 if hc_min is None else hc_min
-    assert d["criteria"] == {"interval_max_s": 30.0, "hc_min_pct": hc}
+    interval = 30.0 if hc_min is not None else 25.0
+    assert d["criteria"] == {"interval_max_s": interval, "hc_min_pct": hc}
     rules = default_rules()
     expected, meets = brute_force_designs(scenario, rules, range(1, 7), (13, 21), (1.6, 2.5),
-                                          30.0, hc, 400, 2026)
+                                          interval, hc, 400, 2026)
     got = {x["rule"]: x for x in d["designs"]}
     assert list(got) == rules
     for rule in rules:
@@ -162,7 +174,8 @@ def test_size_is_the_first_passing_candidate_of_a_brute_force_search(building_fi
         assert expected["random"] == (5, 13, 2.5)
         assert meets[("random", 5, 21, 1.6)][0] and meets[("random", 6, 13, 1.6)][0]
     else:
-        assert expected["fewest-stops"] == (3, 13, 2.5)     # speed is searched too
+        assert expected["random"] == (3, 13, 2.5)           # speed is searched too
+        assert not meets[("random", 3, 13, 1.6)][0]
 
 
 @pytest.mark.slow

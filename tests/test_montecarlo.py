@@ -23,12 +23,13 @@ from roundtrip.building import Building, LiftGroup, Traffic
 from roundtrip.classical import (expected_stops_poisson, highest_reversal_floor_poisson,
                                  uppeak_calculation)
 from roundtrip.kinematics import flight_time_s, regime_boundaries_m
-from roundtrip.montecarlo import PassengerSampler, simulate_demand, simulate_trips, time_trips
+from roundtrip.montecarlo import (PassengerSampler, chain_sums, simulate_demand,
+                                  simulate_trips, time_trips)
 from roundtrip.passengers import alias_table, od_matrix, passenger_counts
-from roundtrip.schedule import trip_timing
+from roundtrip.schedule import TripOut, trip_timing
 
 from .mc_power import K_SIGMA, assert_cell_frequencies, assert_estimate, assert_unbiased
-from .reference_trip import reference_trip
+from .reference_trip import reference_chain, reference_trip
 
 
 def flight_table_s(building, group):
@@ -140,40 +141,65 @@ def test_kernel_equals_plain_reference_on_tall_buildings(floors):
     assert_equals_reference(b, g, orig, dest, offsets, time_trips(b, g, orig, dest, offsets))
 
 
+def assert_chains_equal_reference(building, group, sampler, stream, chain):
+    """Run the one-car Monte Carlo kernel on ``stream`` in chains of ``chain`` trips and
+    check every trip against the plain twin (tests/reference_trip.py::reference_chain):
+    to the bit, with the running sums the sums of those trips and every passenger who
+    arrived carried or still waiting."""
+    timing = trip_timing(building, group)
+    orig, dest = sampler.cells(stream.uniforms)
+    trips_n = stream.offsets.size - 1
+    sample = TripOut.empty(trips_n)
+    sums = chain_sums(sampler, timing, stream, chain, sample)
+    flight = flight_table_s(building, group).tolist()
+    offsets = stream.offsets
+    for c0 in range(0, trips_n, chain):
+        trips = [list(zip(orig[offsets[t]:offsets[t + 1]].tolist(),
+                          dest[offsets[t]:offsets[t + 1]].tolist()))
+                 for t in range(c0, min(trips_n, c0 + chain))]
+        twin, waiting = reference_chain(trips, flight, group.rated_load_persons,
+                                        group.stop_overhead_s, group.transfer_in_s,
+                                        group.transfer_out_s)
+        assert sums.waiting_end[c0 // chain] == len(waiting)
+        for i, (ref, offered) in enumerate(twin):
+            t = c0 + i
+            assert sample.rtt_s[t] == ref.time_s
+            assert list(sample.counts[t]) == [ref.stops, ref.highest, ref.lowest, ref.boarded,
+                                              ref.peak_load, offered - ref.boarded, offered]
+    assert np.array_equal(sums.count_sum.sum(axis=0), sample.counts.sum(axis=0))
+    assert sums.count_sum[:, K.BOARDED].sum() + sums.waiting_end.sum() == offsets[-1]
+    assert sums.rtt_sum_s.sum() + (sums.rtt_shift_s * sums.trips).sum() == pytest.approx(
+        sample.rtt_s.sum(), rel=1e-12)
+
+
 @pytest.mark.parametrize("floors", [17, 32, 48, 63])
 @pytest.mark.parametrize("mix", [(0.5, 0.3, 0.2), (1.0, 0.0, 0.0)], ids=["mixed", "up-peak"])
 def test_fused_sampling_kernel_equals_the_plain_reference_on_tall_buildings(floors, mix):
-    """simulate_trips' kernels (sampling inside the kernel; up-peak straight into the stop
-    mask) on 17 ... 63 floors: each trip equals the plain twin's trip of the passengers
-    the same uniforms pick."""
+    """The Monte Carlo kernel (sampling inside the kernel; up-peak straight into the stop
+    mask; chains of trips with carry-over) on 17 ... 63 floors with unequal rises: each
+    trip equals the plain twin's trip of the passengers the same uniforms pick."""
     b = tall_building(floors)
     g = replace(SLOW_GROUP, rated_load_persons=21, rated_speed_mps=4.0)
     sampler = PassengerSampler(b, Traffic(10.0, *mix))
     stream = sampler.uniforms(np.random.default_rng(floors + 1), 16.0, 400, True)
-    fused = sampler.sampled_trips(trip_timing(b, g), stream)
-    orig, dest = sampler.cells(stream.uniforms)
-    assert_equals_reference(b, g, orig, dest, stream.offsets, fused)
+    assert_chains_equal_reference(b, g, sampler, stream, 7)
 
 
-@pytest.mark.parametrize("mix", [(0.5, 0.3, 0.2), (1.0, 0.0, 0.0)], ids=["mixed", "up-peak"])
-def test_fused_sampling_kernel_equals_sampling_then_timing(mix):
-    """simulate_trips samples inside the kernel (up-peak: straight into the stop mask);
-    it must give the numbers of the two-step path (sample the batch, then time it)
-    on the same random stream."""
-    b = Building("H", (3.5, 4.0, 3.5, 5.0, 3.0), (10.0, 50.0, 0.0, 40.0, 25.0), 7.0)
-    t = Traffic(10.0, *mix)
-    g = replace(SLOW_GROUP, rated_load_persons=6)
-    sampler = PassengerSampler(b, t)
-    timing = trip_timing(b, g)
-    stream = sampler.uniforms(np.random.default_rng(12), 7.5, 5_000, True)
-    offsets = stream.offsets
-    assert sampler.lobby_origins_only == (mix[0] == 1.0)
-    fused = sampler.sampled_trips(timing, stream)
-    orig, dest, offsets2 = sampler.draw(np.random.default_rng(12), 7.5, 5_000, True)
-    two_step = time_trips(b, g, orig, dest, offsets2, timing)
-    assert np.array_equal(offsets, offsets2)
-    assert np.array_equal(fused.rtt_s, two_step.rtt_s)
-    assert np.array_equal(fused.counts, two_step.counts)
+@settings(max_examples=40)
+@given(bg=building_and_group(), mix=st.sampled_from([(1, 0, 0), (0, 1, 0), (0.4, 0.3, 0.3),
+                                                      (0, 0, 1), (0.45, 0.45, 0.1)]),
+       seed=st.integers(0, 2**32 - 1), mean=st.floats(0, 10), chain=st.integers(1, 9))
+def test_chain_kernel_equals_the_plain_chain_exactly(bg, mix, seed, mean, chain):
+    """The one-car Monte Carlo kernel (chains of trips, whoever is left behind waiting
+    for the next trip) gives, trip by trip, the numbers of its plain twin
+    (tests/reference_trip.py::reference_chain) to the bit, and its running sums are the
+    sums of those trips; every passenger who arrived was carried or is still waiting."""
+    building, group = bg
+    if mix[2] > 0 and sum(p > 0 for p in building.populations) < 2:
+        mix = (1, 0, 0)
+    sampler = PassengerSampler(building, Traffic(10.0, *mix))
+    stream = sampler.uniforms(np.random.default_rng(seed), mean, 23, True)
+    assert_chains_equal_reference(building, group, sampler, stream, chain)
 
 
 def od_by_hand(populations, incoming, outgoing, interfloor):
@@ -490,11 +516,15 @@ def test_demand_fixed_point_refuses_a_bad_iteration_limit(bad):
         simulate_demand(MIXED_OFFICE, MIXED_GROUP, MIXED_DEMAND, seed=3, max_iterations=bad)
 
 
-def test_demand_fixed_point_from_a_good_start_settles_at_once():
-    """Up-peak on equal floors: the classical start is within the Monte Carlo's interval
-    of the fixed point, so the first step settles (design-load run + one step)."""
-    r = simulate_demand(MIXED_OFFICE, MIXED_GROUP, Traffic(11.0), seed=3, max_iterations=1)
-    assert r.converged and r.iterations == 2
+def test_demand_fixed_point_from_a_good_start_settles_in_a_few_steps():
+    """Up-peak on equal floors: the classical start is close to the fixed point, so each
+    step moves the offered load by under 1 % and the round-trip time settles (two
+    successive steps within the Monte Carlo's 95 % half-width) in at most three steps
+    after the design-load run."""
+    r = simulate_demand(MIXED_OFFICE, MIXED_GROUP, Traffic(11.0), seed=3)
+    assert r.converged and r.iterations <= 4
+    loads = [t["passengers_per_trip"] for t in r.trace[1:]]
+    assert all(abs(b / a - 1.0) < 0.01 for a, b in zip(loads, loads[1:])), loads
 
 
 def test_demand_beyond_the_group_is_saturated_at_the_design_load():
@@ -542,3 +572,22 @@ def test_simulate_command_json_keys_and_errors(tmp_path, capsys):
         with pytest.raises(SystemExit) as exit_:          # argparse: usage and exit 2
             main(["simulate", str(f), *bad])
         assert exit_.value.code == 2
+
+
+def test_streamed_estimates_do_not_depend_on_threads_or_chunk_prefetch():
+    """The stream is defined chunk by chunk (roundtrip/stream.py): the demand fixed point
+    and a comparison of rules give the very same numbers on one and on two threads,
+    and a run of exactly N trips is the chunks of that plan, in order."""
+    from batchrounds.montecarlo import compare_rules
+    from roundtrip.stream import CHUNK_TRIPS, chunk_sizes
+    b = CLASSICAL_BUILDINGS[1]
+    t = Traffic(9.0, 0.7, 0.2, 0.1)
+    one = simulate_demand(b, SLOW_GROUP, t, seed=5, threads=1).to_dict()
+    two = simulate_demand(b, SLOW_GROUP, t, seed=5, threads=2).to_dict()
+    assert one == two
+    a = compare_rules(b, SLOW_GROUP, ["sorted"], 8.0, traffic=t, trials=5000, seed=2, threads=1)
+    c = compare_rules(b, SLOW_GROUP, ["sorted"], 8.0, traffic=t, trials=5000, seed=2, threads=2)
+    assert a.to_dict() == c.to_dict()
+    assert chunk_sizes(2 * CHUNK_TRIPS + 5, CHUNK_TRIPS) == [CHUNK_TRIPS, CHUNK_TRIPS, 5]
+    r = simulate_trips(b, SLOW_GROUP, 8.0, traffic=t, trials=CHUNK_TRIPS + 7, seed=3)
+    assert r.trials == CHUNK_TRIPS + 7

@@ -91,12 +91,14 @@ def test_schedule_is_the_reference_trip_in_time(t):
             s.alighted[e] * group.transfer_out_s if e > 0 else 0.0)
         assert s.depart_s[e] - s.arrive_s[e] == pytest.approx(dwell, abs=tol)
     # the route, read from the kernel's own schedule: strictly ascending to the highest
-    # stop, strictly descending after it, and back at the lobby
+    # stop, strictly descending after it, and back where it started: the lobby, or, for a
+    # trip without lobby traffic, its lowest stop (docs/trip_model.md)
     floors = list(s.stop_floors[1:-1])
     top = floors.index(max(floors)) if floors else 0
     assert all(a < b for a, b in zip(floors[:top], floors[1:top + 1]))
     assert all(a > b for a, b in zip(floors[top:], floors[top + 1:]))
-    assert s.stop_floors[0] == s.stop_floors[-1] == 0
+    lobby_traffic = any(o == 0 or d == 0 for o, d in pairs) or not pairs
+    assert s.stop_floors[0] == s.stop_floors[-1] == (0 if lobby_traffic else min(s.stop_floors))
     for i, (orig, dest) in enumerate(pairs):
         if s.board_stop[i] >= 0:
             assert s.stop_floors[s.board_stop[i]] == orig
@@ -131,3 +133,33 @@ def test_every_floor_is_reached_where_it_is(floors):
             assert s.round_trip_time_s == pytest.approx(expected, rel=1e-12)
     s = schedule_of([(0, f) for f in range(floors, 0, -1)], b, g)
     assert s.stop_floors == (0, *range(1, floors + 1), 0)
+def test_trip_without_lobby_traffic_by_hand():
+    """docs/trip_model.md, "A trip without lobby traffic": the hand-worked floors, every flight
+    d + 5/3 s, 5.2 s a stop, 1.2 s a transfer; passengers (1 -> 3) and (2 -> 1). Nobody
+    boards or alights at the lobby, so the trip starts and ends at floor 1, its lowest
+    stop, counted once: route 1 -> 3 -> 2 -> 1, flights 8.667 + 5.167 + 5.167 = 19.0 s,
+    3 stops x 5.2 s = 15.6 s, transfers 2 x 2.4 s = 4.8 s: RTT = 39.4 s; three stops above
+    the lobby, highest reversal floor 3, lowest 1."""
+    s = schedule_of([(1, 3), (2, 1)], HAND_BUILDING, replace(HAND_GROUP, rated_load_persons=2))
+    assert s.stop_floors == (1, 3, 2, 1)
+    assert s.round_trip_time_s == pytest.approx(39.4, abs=1e-9)
+    ref = reference_trip([(1, 3), (2, 1)], trip_timing(HAND_BUILDING, HAND_GROUP).flight_s.tolist(),
+                         2, HAND_GROUP.stop_overhead_s, 1.2, 1.2)
+    assert (ref.time_s, ref.stops, ref.highest, ref.lowest) == (s.round_trip_time_s, 3, 3, 1)
+    counts = np.empty((1, N_COUNTS), np.int64)
+    o, d = np.array([1, 2]), np.array([3, 1])
+    assert car_trip(o, d, 2, trip_timing(HAND_BUILDING, HAND_GROUP), new_scratch(2, 4), counts,
+                    0) == s.round_trip_time_s
+    assert list(counts[0, :3]) == [3, 3, 1]
+
+
+def test_a_full_car_passes_a_landing_call_by_hand():
+    """docs/trip_model.md: a full car answers no landing call. Rated load 1; passengers
+    (3 -> 1) and then (2 -> 1): the car takes the first at floor 3, is full at floor 2,
+    where nobody alights, and passes it; the second waits (left behind). Route 1 -> 3 -> 1:
+    flights 2 x 8.667 = 17.333 s, 2 stops x 5.2 s = 10.4 s, transfers 2.4 s: 30.133 s."""
+    one = replace(HAND_GROUP, rated_load_persons=1)
+    s = schedule_of([(3, 1), (2, 1)], HAND_BUILDING, one)
+    assert s.stop_floors == (1, 3, 1)
+    assert s.round_trip_time_s == pytest.approx(2 * (7.0 + 5.0 / 3) + 10.4 + 2.4, abs=1e-9)
+    assert s.board_stop == (1, -1)

@@ -96,15 +96,22 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
 
     calc = sub.add_parser(
-        "calc", help="classical up-peak round-trip time, interval and handling capacity",
-        description="Classical up-peak calculation (ISO 8100-32 / CIBSE Guide D formulae). "
-                    "With --passengers, at that car load; otherwise in demand mode, at the car "
-                    "load that carries traffic.arrival_rate_pct_5min.")
+        "calc", help="classical round-trip time, interval and handling capacity (any traffic mix)",
+        description="Classical calculation: the up-peak formulae of ISO 8100-32 / CIBSE Guide D "
+                    "for up-peak traffic, the general analysis (expected up and down stops, "
+                    "highest and lowest reversal floors) for any other traffic mix. With "
+                    "--passengers, at that load; otherwise in demand mode, at the load that "
+                    "carries traffic.arrival_rate_pct_5min. Passenger counts are Poisson (arrivals "
+                    "at random over each car's interval) unless --fixed.")
     _add_file(calc)
     calc.add_argument("--passengers", metavar="P", type=passengers_type,
-                      help="passengers per trip [persons], a real number >= 0 (given-load mode)")
-    calc.add_argument("--poisson", action="store_true",
-                      help="use the Poisson-passenger forms of S and H")
+                      help="passengers per trip [persons], a real number >= 0, at most what a "
+                           "car can carry (given-load mode)")
+    counts = calc.add_mutually_exclusive_group()
+    counts.add_argument("--fixed", action="store_true",
+                        help="fixed passenger counts: the ISO 8100-32 forms of S and H")
+    counts.add_argument("--poisson", action="store_true",
+                        help="Poisson passenger counts with mean P (the default)")
     _add_json(calc)
     calc.set_defaults(handler="experiments.cli.calc", compiled=False)
 
@@ -125,8 +132,9 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     cmp_ = sub.add_parser(
         "compare", help="compare allocation rules (conventional against destination grouping)",
         description="Compare allocation rules on the very same passenger batches (common random "
-                    "numbers). A trial is one batch of cars x P passengers; gains are against "
-                    "`random` (conventional control) with paired 95 %% intervals.")
+                    "numbers). A trial is one round of the group, each car's passengers arriving "
+                    "over its interval (cars x P on average); gains are against `random` "
+                    "(conventional control) with paired 95 % intervals.")
     _add_file(cmp_)
     cmp_.add_argument("--rules", metavar="LIST", help=rules_help)
     cmp_.add_argument("--cars-open", metavar="K", type=cars_open_type,
@@ -166,14 +174,15 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     sz = sub.add_parser(
         "size", help="smallest group meeting interval and handling-capacity criteria, per rule",
         description="Search lift groups, fewest cars first, then smallest car, then slowest "
-                    "speed, for the smallest one whose interval and 5-minute handling capacity "
-                    "at design load meet the criteria under each rule, and say what "
-                    "destination control saves. Default criteria: interval <= 30 s and "
-                    "handling capacity >= the file's demand (or 12 %%), common office practice "
-                    "(CIBSE Guide D).")
+                    "speed, for the smallest one whose interval at the demand and 5-minute "
+                    "handling capacity at design load meet the criteria under each rule, and "
+                    "say what destination control saves. Default criteria: interval <= 30 s "
+                    "and handling capacity >= the file's demand (or 12 %), common office "
+                    "practice (CIBSE Guide D).")
     _add_file(sz)
     sz.add_argument("--interval-max", metavar="S", type=interval_type,
-                    help="largest acceptable interval at design load [s] (default 30)")
+                    help="largest acceptable interval at the load the demand (--hc-min) sets "
+                         "[s] (default 30)")
     sz.add_argument("--hc-min", metavar="PCT", type=hc_type,
                     help="least 5-minute handling capacity [%% of population] (default: the "
                          "file's demand, else 12)")
@@ -183,6 +192,10 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     help="rated loads to try [persons], e.g. 13,16,21 (default: the file's)")
     sz.add_argument("--speeds", metavar="LIST",
                     help="rated speeds to try [m/s], e.g. 1.6,2.5,3.5 (default: the file's)")
+    sz.add_argument("--cars-open", metavar="K", type=cars_open_type,
+                    help="cars open to each allocation of a destination rule (min(K, cars) per "
+                         "candidate; default 2, the realisable value: the car loading at the "
+                         "lobby and the next one; every car open is the ideal bound)")
     sz.add_argument("--rules", metavar="LIST", help=rules_help)
     sz.add_argument("--fixed", action="store_true", help="fixed passenger counts (default Poisson)")
     sz.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -197,7 +210,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "arrivals, cars leaving when loaded or when their lobby dwell has run), under "
                     "conventional control and destination control (delayed allocation by a "
                     "batch rule, or immediate allocation by a policy), on the same arrivals. "
-                    "Up-peak traffic. Figures carry 95 %% intervals from independent "
+                    "Up-peak traffic. Figures carry 95 % intervals from independent "
                     "replications.")
     _add_file(pk)
     pk.add_argument("--controls", metavar="LIST",

@@ -34,16 +34,21 @@ def run(args, scenario: Scenario) -> int:
         return 0
     print(f"{d['building']}: allocation rules on common passengers "
           f"({count_of(d['cars'], 'car')}, "
-          f"{d['cars_open']} open to allocation, {d['passengers_per_car']:.2f} passengers per car "
-          f"({d['passenger_model']}), {d['trials']:,} batches, seed {d['seed']})")
+          f"{d['cars_open']} open to allocation, {d['passengers_per_car']:.2f} passengers offered "
+          f"per car interval ({d['passenger_model']} counts, {d['traffic_mix']} traffic), "
+          f"{d['trials']:,} rounds, seed {d['seed']})")
     rows = [[r["rule"], r["round_trip_time_s"], r["ci95_s"], r["interval_s"],
              r["handling_capacity_pct_5min"], r["expected_stops"], r["highest_reversal_floor"],
-             r["car_load_pct"], r["rtt_gain_pct_vs_random"], r["rtt_gain_ci95_pct"],
-             r["hc_gain_pct_vs_random"], r["hc_gain_ci95_pct"]] for r in d["rules"]]
+             r["car_load_pct"], 100.0 * r["left_behind_share"], r["rtt_gain_pct_vs_random"],
+             r["rtt_gain_ci95_pct"], r["hc_gain_pct_vs_random"], r["hc_gain_ci95_pct"]]
+            for r in d["rules"]]
     print(grid_table(["rule", "RTT [s]", "+/-", "INT [s]", "HC [%/5min]", "stops", "H",
-                      "load [%]", "RTT gain [%]", "+/-", "HC gain [%]", "+/-"], rows))
-    print("\nGains are against `random` (conventional control) on the same batches; "
-          "+/- are paired 95 % intervals.")
+                      "load [%]", "left [% trips]", "RTT gain [%]", "+/-", "HC gain [%]", "+/-"],
+                     rows))
+    print("\nGains are against `random` (conventional control) on the same passengers, each car "
+          "carrying as many as under conventional control; +/- are paired 95 % intervals. "
+          "load: the mean load on the busiest stretch of the trip; left: the car trips that "
+          "leave someone waiting for the next car (nobody is dropped).")
     note = target_note(args, max(100 * r["ci95_s"] / r["round_trip_time_s"] for r in d["rules"]
                                  if r["round_trip_time_s"] > 0) if d["rules"] else 0.0,
                        d["trials"])

@@ -27,13 +27,16 @@ def check_job_trials(trials, scenario: Scenario) -> None:
 
 
 def run(args, scenario: Scenario) -> int:
+    from experiments.progress import Stages
+    stages = Stages(quiet=args.quiet or args.json)
+    stages(f"liftsort report: {scenario.building.name}")
     from experiments.report_job import run_job
     check_job_trials(args.trials, scenario)
     with output_set(args.out, command="report") as outs:
         result = published(run_job(scenario, args.file, outs.folder, seed=args.seed,
                                    ci_target_pct=args.ci_target, trials=args.trials,
                                    max_trials=args.max_trials, quiet=args.quiet or args.json,
-                                   threads=args.threads), outs)
+                                   threads=args.threads, stages=stages), outs)
     if args.json:
         print(dumps(result))
         return 0

@@ -36,9 +36,10 @@ def sizing(scenario: Scenario, args) -> dict:
     total = len(plan["cars"]) * len(plan["loads"]) * len(plan["speeds"])
     with progress_bar(total, args.quiet or args.json, "sizing") as bar:
         result = size_group(scenario, plan["rules"], criteria, plan["cars"], plan["loads"],
-                            plan["speeds"], poisson=not args.fixed, trials=args.trials,
-                            ci_target_pct=args.ci_target, max_trials=args.max_trials,
-                            seed=args.seed, threads=args.threads, on_candidate=bar.update)
+                            plan["speeds"], cars_open=args.cars_open, poisson=not args.fixed,
+                            trials=args.trials, ci_target_pct=args.ci_target,
+                            max_trials=args.max_trials, seed=args.seed, threads=args.threads,
+                            on_candidate=bar.update)
     return {"building": scenario.building.name, **result}
 
 
@@ -50,13 +51,17 @@ def run(args, scenario: Scenario) -> int:
         print(dumps(out))
         return 0
     c = d["criteria"]
-    print(f"{d['building']}: smallest group with interval <= {c['interval_max_s']:g} s and "
-          f"handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load")
-    rows = [[x["rule"], x["cars"] if x["found"] else "none", x["rated_load_persons"],
-             x["rated_speed_mps"], x["interval_s"], x["handling_capacity_pct_5min"],
-             x["round_trip_time_s"]] for x in d["designs"]]
-    print(grid_table(["rule", "cars", "load [persons]", "speed [m/s]", "INT [s]",
-                      "HC [%/5min]", "RTT [s]"], rows))
+    print(f"{d['building']}: smallest group with interval <= {c['interval_max_s']:g} s at the "
+          f"demand and handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load "
+          f"({d['passenger_model']} passenger counts; destination rules with "
+          f"{d['cars_open']} car(s) open to allocation"
+          f"{' (the default, realisable)' if args.cars_open is None else ''})")
+    rows = [[x["rule"], x["cars"] if x["found"] else "none", x["cars_open"],
+             x["rated_load_persons"], x["rated_speed_mps"], x["interval_s"],
+             x["handling_capacity_pct_5min"], x["round_trip_time_s"]] for x in d["designs"]]
+    print(grid_table(["rule", "cars", "cars open", "load [persons]", "speed [m/s]",
+                      "INT at demand [s]", "HC at design load [%/5min]", "RTT at design [s]"],
+                     rows))
     for s in d["savings"]:
         print("- " + s["saving"])
     for x in d["designs"]:

@@ -8,6 +8,7 @@ from .registry import register_policy
 
 @register_policy(
     "least-added-time",
+    headline=True,
     summary="Each passenger, as they register, is given the car that minimises their own "
             "estimated time until the car leaves plus the time their extra stop and transfer "
             "add to the passengers already given that car. It weighs a short wait against "

@@ -31,7 +31,7 @@ from .contract import CAR_VIEW, car_limit, empty_cars, scratch_size
 
 __all__ = ["Rule", "Policy", "RuleParams", "RULES", "POLICIES", "register", "register_policy",
            "get_rule", "get_policy", "rule_names", "policy_names", "baseline_rule",
-           "default_rules", "peak_controls", "car_limit", "scratch_size"]
+           "default_rules", "peak_controls", "headline_control", "car_limit", "scratch_size"]
 
 
 class RuleParams(NamedTuple):
@@ -144,6 +144,7 @@ class Policy:
     function: Callable
     prepare: Callable | None = None
     peak: bool = True
+    headline: bool = False
     kind = "immediate policy"
     max_batch = None
 
@@ -250,11 +251,16 @@ def register(name: str, *, summary: str, source: str, prepare: Callable | None =
 
 
 def register_policy(name: str, *, summary: str, source: str, prepare: Callable | None = None,
-                    peak: bool = True):
-    """Decorator: register ``function`` as the immediate policy ``name``."""
+                    peak: bool = True, headline: bool = False):
+    """Decorator: register ``function`` as the immediate policy ``name``; ``headline``: the
+    destination control the decision is stated for unless the user names another (one
+    policy)."""
     def wrap(function: Callable) -> Callable:
         _check_new(name)
-        POLICIES[name] = Policy(name, summary, source, function, prepare, peak)
+        if headline and any(p.headline for p in POLICIES.values()):
+            raise ValueError(f"allocation policy {name!r}: a headline policy is registered "
+                             f"already")
+        POLICIES[name] = Policy(name, summary, source, function, prepare, peak, headline)
         return function
     return wrap
 
@@ -296,6 +302,12 @@ def default_rules() -> list[str]:
     """The rules the round-trip commands run by default, the baseline first."""
     base = baseline_rule()
     return [base] + [r.name for r in RULES.values() if r.default and r.name != base]
+
+
+def headline_control() -> str:
+    """The destination control the decision is stated for by default (declared before any
+    result is seen, never the best of several after the fact)."""
+    return next(p.name for p in POLICIES.values() if p.headline)
 
 
 def peak_controls() -> list[str]:

@@ -14,6 +14,8 @@ def _flags(rule) -> str:
         flags.append("round-trip default")
     if getattr(rule, "peak", False):
         flags.append("peak default")
+    if getattr(rule, "headline", False):
+        flags.append("the destination control of the decision unless one is named")
     if rule.max_batch:
         flags.append(f"batches of at most {rule.max_batch} passengers")
     return "; ".join(flags) or "-"
@@ -54,6 +56,13 @@ def rules_markdown() -> str:
               "and is not open to the same registrations; one car open is conventional control. "
               "The peak simulation (`liftsort peak`) finds the cars open from the cars' state "
               "instead of assuming it.", "",
+              "## The destination control of the decision", "",
+              "`liftsort report`, `demo` and `size` state their answer for one destination "
+              "control, declared here before any result is seen (never the best of several "
+              "after the fact): `least-added-time`, the policy that weighs each passenger's "
+              "wait against the delay their stop adds to those already given the car, the "
+              "form in which destination control is usually described (common practice). "
+              "`--destination-control NAME` names another.", "",
               "Every rule carries, car by car, the passengers conventional control would give "
               "that car (its *room*), in each direction apart when a batch holds both, so all "
               "rules are compared at the same car load."]

@@ -494,7 +494,8 @@ def _distribution(results, column: int, xlabel: str, title: str, out_dir, stem) 
 
 # --------------------------------------------------------------------------- batch diagram
 def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_car=None,
-                  seed: int = 0, out_dir=".", building_name: str | None = None) -> list[Path]:
+                  seed: int = 0, out_dir=".", building_name: str | None = None,
+                  design_traffic_is_uppeak: bool = True) -> list[Path]:
     """One sampled up-peak batch, allocated by each rule: who rode which car to which floor.
 
     Parameters
@@ -514,6 +515,9 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
         Output folder (created if needed).
     building_name : str, optional
         Shown in the title (default: the building's name).
+    design_traffic_is_uppeak : bool
+        False when the building's design traffic is a mix: the title then says that the
+        round drawn is an up-peak illustration.
 
     Returns
     -------
@@ -606,10 +610,13 @@ def batch_diagram(building, group, rules=("random", "sorted"), passengers_per_ca
         ax0.set_yticklabels(["lobby"] + [str(f) for f in range(1, floors + 1)])
         ax0.set_ylim(-0.6, floors + 0.6)
         ax0.set_ylabel("destination floor [floor]")
+        mixed = ("" if design_traffic_is_uppeak else
+                 "\nAn illustration with up-peak arrivals only: the building's design traffic "
+                 "is a mix of incoming, outgoing and interfloor trips")
         _suptitle(fig, f"{name}: one up-peak round of {count_of(n, 'passenger')} for "
                      f"{count_of(cars, 'car')} (fixed counts per car, every car open), "
                      f"allocated by {' and by '.join(repr(r) for r, _, _ in drawn)} "
-                     f"(seed {seed})")
+                     f"(seed {seed}){mixed}")
         from matplotlib.lines import Line2D
         handles = [Line2D([], [], linestyle="none", marker="_", markersize=16, markeredgewidth=7,
                           color="#c8c8c8")]

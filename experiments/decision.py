@@ -220,45 +220,102 @@ class SensitivityStep:
 
     input: str                  # what was moved, in words
     step: str                   # by how much, in words
-    hc_gain_pct_5min: float | None           # destination control's HC at criterion - conventional's
-    ttd_difference_s: float                  # destination - conventional, at the file's demand
+    conventional_pct_5min: float | None      # handling capacity at the criterion
+    destination_pct_5min: float | None
+    demand_pct_5min: float                   # the design demand (moved by the demand step)
+    ttd_difference_s: float                  # destination - conventional, at that demand
     ttd_difference_ci95_s: float
+    monte_carlo: bool = False                # the same inputs on another seed (MC error)
+
+    @property
+    def hc_gain_pct_5min(self) -> float | None:
+        """Destination control's handling capacity at the criterion less conventional's."""
+        a, b = self.destination_pct_5min, self.conventional_pct_5min
+        return None if a is None or b is None else a - b
+
+    @property
+    def outcome(self) -> str:
+        return outcome(self.conventional_pct_5min, self.destination_pct_5min,
+                       self.demand_pct_5min)
+
+    def to_dict(self) -> dict:
+        return {"input": self.input, "step": self.step, "basis": "peak",
+                "conventional_hc_at_criterion_pct_5min": self.conventional_pct_5min,
+                "destination_hc_at_criterion_pct_5min": self.destination_pct_5min,
+                "hc_gain_pct_5min": self.hc_gain_pct_5min,
+                "demand_pct_5min": self.demand_pct_5min,
+                "time_to_destination_difference_s": self.ttd_difference_s,
+                "time_to_destination_difference_ci95_s": self.ttd_difference_ci95_s,
+                "outcome": self.outcome, "monte_carlo_error": self.monte_carlo}
+
+
+#: The three answers the capacities can give at a demand.
+CONVENTIONAL_SUFFICES = "conventional control meets the criterion"
+DESTINATION_NEEDED = "only destination control meets the criterion"
+NEITHER = "neither control meets the criterion"
+
+
+def outcome(conventional_pct, destination_pct, demand_pct) -> str:
+    """Which of the three answers the capacities at the criterion give at ``demand_pct``."""
+    if conventional_pct is not None and conventional_pct >= demand_pct:
+        return CONVENTIONAL_SUFFICES
+    if destination_pct is not None and destination_pct >= demand_pct:
+        return DESTINATION_NEEDED
+    return NEITHER
 
 
 def _moved(scenario: Scenario, name: str, sign: int):
+    """The scenario with input ``name`` moved one step down (-1) or up (+1), and the step
+    in words; (None, "") where the step leaves the input's range."""
     g, t = scenario.group, scenario.traffic
+    pm = "+" if sign > 0 else "-"
     if name == "transfer times":
         f = 1 + 0.2 * sign
         return replace(scenario, group=replace(g, transfer_in_s=g.transfer_in_s * f,
-                                               transfer_out_s=g.transfer_out_s * f)), \
-            f"{'+' if sign > 0 else '-'}20 %", None
+                                               transfer_out_s=g.transfer_out_s * f)), f"{pm}20 %"
     if name == "door times":
         f = 1 + 0.2 * sign
         return replace(scenario, group=replace(g, door_open_s=g.door_open_s * f,
-                                               door_close_s=g.door_close_s * f)), \
-            f"{'+' if sign > 0 else '-'}20 %", None
+                                               door_close_s=g.door_close_s * f)), f"{pm}20 %"
     if name == "departure load":
         load = g.departure_load_persons + sign
         if not 1 <= load <= g.rated_load_persons:
-            return None, "", None
+            return None, ""
         return replace(scenario, group=replace(g, capacity_factor=load / g.rated_load_persons)), \
-            f"{sign:+d} person", None
+            f"{sign:+d} person"
     if name == "demand":
         pct = t.arrival_rate_pct_5min + 2.0 * sign
         if pct <= 0:
-            return None, "", None
+            return None, ""
         return replace(scenario, traffic=replace(t, arrival_rate_pct_5min=pct,
                                                  profile_pct_5min=None)), \
-            f"{2 * sign:+d} % / 5 min", None
+            f"{2 * sign:+d} % / 5 min"
     if name == "lobby dwell":
         f = 1 + 0.5 * sign
-        return replace(scenario, group=replace(g, lobby_dwell_s=g.lobby_dwell_s * f)), \
-            f"{'+' if sign > 0 else '-'}50 %", None
-    raise ValueError(name)
+        return replace(scenario, group=replace(g, lobby_dwell_s=g.lobby_dwell_s * f)), f"{pm}50 %"
+    raise ValueError(f"sensitivity input {name!r}: not one of {', '.join(SENSITIVITY_INPUTS)}")
 
 
+#: The inputs moved, each down and up: transfer and door times by 20 %, the departure load
+#: by one person, the demand by 2 % of the population per 5 min, the allocation window
+#: (delayed allocation only) and the lobby dwell by 50 %.
 SENSITIVITY_INPUTS = ("transfer times", "door times", "departure load", "demand",
                       "allocation window", "lobby dwell")
+
+
+def _step(scenario, control, criterion, *, name, label, seed, replications, window_s, minutes,
+          low, tol, on_step, monte_carlo=False) -> SensitivityStep:
+    from peak.simulation import simulate_peak
+    caps = capacity_at_criterion(scenario, [control], criterion, seed=seed,
+                                 replications=replications, window_s=window_s, minutes=minutes,
+                                 low_pct=low, tolerance_pct=tol, on_step=on_step)
+    hc = {c.control: c.handling_capacity_pct_5min for c in caps}
+    study = simulate_peak(scenario.building, scenario.group, scenario.traffic, [control],
+                          window_s=window_s, minutes=minutes, replications=replications,
+                          seed=seed, slots=False)
+    diff, ci = paired_ttd_difference(study.run(control), study.runs[0])
+    return SensitivityStep(name, label, hc.get("conventional"), hc.get(control),
+                           scenario.traffic.arrival_rate_pct_5min, diff, ci, monte_carlo)
 
 
 def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *,
@@ -266,10 +323,16 @@ def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *
                 window_s: float = 5.0, minutes: float = 60.0, base=None,
                 inputs=SENSITIVITY_INPUTS, on_step=None) -> list[SensitivityStep]:
     """The decision figures with each input moved down and up by its step (see the module
-    notes); ``base`` (optional) is the unmoved decision, to search capacities near it."""
-    from peak.simulation import simulate_peak
+    notes), then, apart, the inputs as given on another seed (the Monte Carlo error of the
+    capacities). ``base`` (optional): the unmoved capacities, to start the searches near
+    them."""
     from peak.simulation import resolve_controls
     delayed = resolve_controls([control])[-1].kind == "delayed"
+    low, tol = 1.0, CAPACITY_TOLERANCE_PCT
+    if base is not None:                    # search near the unmoved capacities
+        known = [c.handling_capacity_pct_5min for c in base if c.handling_capacity_pct_5min]
+        low = max(1.0, math.floor(min(known) - 3.0)) if known else 1.0
+    run = dict(replications=replications, minutes=minutes, low=low, tol=tol, on_step=on_step)
     steps = []
     for name in inputs:
         if name == "allocation window" and not delayed:
@@ -280,28 +343,32 @@ def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *
                 window = window_s * (1 + 0.5 * sign)
                 moved, label = scenario, f"{'+' if sign > 0 else '-'}50 %"
             else:
-                moved, label, _ = _moved(scenario, name, sign)
+                moved, label = _moved(scenario, name, sign)
             if moved is None:
                 continue
-            low, tol = 1.0, CAPACITY_TOLERANCE_PCT
-            if base is not None:            # search near the unmoved capacities
-                known = [c.handling_capacity_pct_5min for c in base if c.handling_capacity_pct_5min]
-                low = max(1.0, min(known) - 2.0) if known else 1.0
-                tol = 2.5 * CAPACITY_TOLERANCE_PCT
-            caps = capacity_at_criterion(moved, [control], criterion, seed=seed,
-                                         replications=replications, window_s=window,
-                                         minutes=minutes, low_pct=low, tolerance_pct=tol,
-                                         on_step=on_step)
-            hc = {c.control: c.handling_capacity_pct_5min for c in caps}
-            gain = (hc[control] - hc["conventional"]
-                    if hc.get(control) is not None and hc.get("conventional") is not None
-                    else None)
-            study = simulate_peak(moved.building, moved.group, moved.traffic, [control],
-                                  window_s=window, minutes=minutes, replications=replications,
-                                  seed=seed, slots=False)
-            diff, ci = paired_ttd_difference(study.run(control), study.runs[0])
-            steps.append(SensitivityStep(name, label, gain, diff, ci))
+            steps.append(_step(moved, control, criterion, name=name, label=label, seed=seed,
+                               window_s=window, **run))
+    steps.append(_step(scenario, control, criterion, name="Monte Carlo",
+                       label="another seed", seed=seed + 1, window_s=window_s, monte_carlo=True,
+                       **run))
     return steps
+
+
+def turns_on(steps, base_outcome: str) -> list[str]:
+    """The inputs the answer turns on: those with a step that changes the outcome (which
+    control meets the criterion at the demand) or the sign of destination control's gain."""
+    out = []
+    for s in steps:
+        if s.monte_carlo or s.input in out:
+            continue
+        gain = s.hc_gain_pct_5min
+        if s.outcome != base_outcome:
+            out.append(s.input)
+        elif gain is not None and any(
+                t.input == s.input and t.hc_gain_pct_5min is not None
+                and (t.hc_gain_pct_5min > 0) != (gain > 0) for t in steps):
+            out.append(s.input)
+    return out
 
 
 # ------------------------------------------------------------------ the decision
@@ -315,10 +382,11 @@ class Figure:
     ci95: float | None
     unit: str
     basis: str
+    cars_open: int | None = None
 
     def to_dict(self) -> dict:
         return {"name": self.name, "value": self.value, "ci95": self.ci95, "unit": self.unit,
-                "basis": self.basis}
+                "basis": self.basis, "cars_open": self.cars_open}
 
 
 @dataclass(frozen=True)
@@ -327,6 +395,7 @@ class Decision:
 
     building: str
     demand_pct_5min: float
+    cars: int
     destination_control: str
     criterion: ServiceCriterion
     study: object                  # peak.simulation.PeakStudy at the file's demand
@@ -344,100 +413,145 @@ class Decision:
         a, b = self.capacity(self.destination_control), self.capacity("conventional")
         return None if a is None or b is None else a - b
 
+    @property
+    def outcome(self) -> str:
+        return outcome(self.capacity("conventional"), self.capacity(self.destination_control),
+                       self.demand_pct_5min)
+
     def ttd_difference(self):
         return paired_ttd_difference(self.study.run(self.destination_control), self.study.runs[0])
 
-    def verdict(self) -> dict:
-        """The answer in words, with its margin, from the peak-simulated figures."""
+    def turns_on(self) -> list[str]:
+        return turns_on(self.sensitivity, self.outcome)
+
+    def verdict(self, sizing: dict | None = None) -> dict:
+        """The answer in words, with its margin, from the peak-simulated figures (and, when
+        neither control meets the criterion with this group, from the peak sizing)."""
+        from .wording import client_name, count_of
         conv, dc = self.capacity("conventional"), self.capacity(self.destination_control)
         demand = self.demand_pct_5min
-        name = self.destination_control
+        name = client_name(self.destination_control)
         crit = self.criterion.describe()
-        fmt = (lambda x: "no demand tried" if x is None else f"{x:.1f} %")
-        if conv is not None and conv >= demand:
+        fmt = (lambda x: "at none of the demands tried" if x is None else f"up to {x:.1f} %")
+        cars = count_of(self.cars, "car")
+        cars_saved = None
+        if self.outcome == CONVENTIONAL_SUFFICES:
             worth = False
-            text = (f"Destination control is not needed to meet the demand: conventional "
-                    f"control meets the service criterion ({crit}) up to {conv:.1f} % of the "
-                    f"population per 5 minutes, above the design demand of {demand:g} % "
-                    f"(margin {conv - demand:+.1f} points); destination control ('{name}') "
-                    f"meets it up to {fmt(dc)}.")
-        elif dc is not None and dc >= demand:
+            margin = conv - demand
+            text = (f"Destination control is not needed to meet the demand with {cars}: "
+                    f"conventional control meets the service criterion ({crit}) up to "
+                    f"{conv:.1f} % of the population per 5 minutes, {margin:+.1f} points "
+                    f"against the design demand of {demand:g} %; {name} meets it "
+                    f"{fmt(dc)}.")
+        elif self.outcome == DESTINATION_NEEDED:
             worth = True
-            text = (f"Destination control is worth specifying here: at the design demand of "
-                    f"{demand:g} % of the population per 5 minutes, conventional control fails "
-                    f"the service criterion ({crit}; it meets it only up to {fmt(conv)}), "
-                    f"while destination control ('{name}') meets it up to {dc:.1f} % "
-                    f"(margin {dc - demand:+.1f} points over the demand).")
+            margin = dc - demand
+            text = (f"Destination control is worth specifying: at the design demand of "
+                    f"{demand:g} % of the population per 5 minutes, conventional control with "
+                    f"{cars} fails the service criterion ({crit}; it meets it {fmt(conv)}), "
+                    f"while {name} meets it up to {dc:.1f} %, a margin of {margin:+.1f} points "
+                    f"over the demand.")
         else:
             worth = False
+            margin = None if dc is None else dc - demand
             text = (f"Neither control meets the service criterion ({crit}) at the design demand "
-                    f"of {demand:g} % of the population per 5 minutes with this group: "
-                    f"conventional control meets it up to {fmt(conv)}, destination control "
-                    f"('{name}') up to {fmt(dc)}; the group itself needs changing (see the "
-                    f"sizing).")
+                    f"of {demand:g} % of the population per 5 minutes with {cars}: "
+                    f"conventional control meets it {fmt(conv)}, {name} {fmt(dc)}.")
+            designs = {d["control"]: d for d in (sizing or {}).get("designs", [])}
+            c, d = designs.get("conventional"), designs.get(self.destination_control)
+            if c and d and c.get("found") and d.get("found"):
+                cars_saved = c["cars"] - d["cars"]
+                group = (lambda x: f"{count_of(x['cars'], 'car')} of "
+                                   f"{x['rated_load_persons']} persons at "
+                                   f"{x['rated_speed_mps']:g} m/s")
+                text += (f" Sized on the same criterion in the peak simulation, conventional "
+                         f"control needs {group(c)} and destination control {group(d)}")
+                if cars_saved > 0:
+                    worth = True
+                    text += (f": destination control is worth specifying, it saves "
+                             f"{count_of(cars_saved, 'car')}.")
+                elif cars_saved == 0:
+                    text += ": the same number of cars either way."
+                else:
+                    text += ": destination control needs more cars here."
+            elif sizing is not None:
+                text += " The sizing found no group meeting it for both controls."
+            else:
+                text += " The group itself needs changing (see the sizing)."
         return {"worth_specifying": worth, "text": text, "basis": "peak",
-                "margin_pct_5min": (None if dc is None else dc - demand),
-                "gain_pct_5min": self.gain_pct_5min}
+                "outcome": self.outcome, "margin_pct_5min": margin,
+                "gain_pct_5min": self.gain_pct_5min, "cars_saved": cars_saved}
 
-    def to_dict(self) -> dict:
+    def to_dict(self, sizing: dict | None = None) -> dict:
         diff, ci = self.ttd_difference()
         return {"building": self.building, "demand_pct_5min": self.demand_pct_5min,
                 "destination_control": self.destination_control,
-                "criterion": self.criterion.to_dict(), "verdict": self.verdict(),
+                "criterion": self.criterion.to_dict(), "verdict": self.verdict(sizing),
                 "capacity_at_criterion": [c.to_dict() for c in self.capacities],
                 "time_to_destination_difference_s": {"value": diff, "ci95": ci,
                                                      "basis": "peak"},
                 "bounds": [b.to_dict() for b in self.bounds],
-                "sensitivity": [{"input": s.input, "step": s.step,
-                                 "hc_gain_pct_5min": s.hc_gain_pct_5min,
-                                 "time_to_destination_difference_s": s.ttd_difference_s,
-                                 "time_to_destination_difference_ci95_s": s.ttd_difference_ci95_s,
-                                 "basis": "peak"} for s in self.sensitivity],
+                "sensitivity": [s.to_dict() for s in self.sensitivity],
+                "turns_on": self.turns_on(),
                 "seed": self.seed}
 
 
-def round_trip_bounds(scenario: Scenario, rule: str, cars_open: int, *, seed: int = 0,
-                      trials: int | None = None) -> tuple:
+#: The batch rule whose round-trip bounds stand beside the peak-simulated answer: sorting
+#: the batch by destination, the plainest grouping to explain.
+BOUND_RULE = "sorted"
+
+
+def round_trip_bounds(scenario: Scenario, rule: str = BOUND_RULE, *, cars_open: int | None = None,
+                      seed: int = 0, trials: int | None = None, threads=None) -> tuple:
     """Destination grouping's handling capacity at the design load by the round-trip Monte
-    Carlo of batches: with ``cars_open`` cars sharing each allocation (the realisable bound:
-    cars of one allocation leave together) and with every car open and the whole round
-    known (the ideal bound) [% of population per 5 min]."""
+    Carlo of batches: with the realisable cars open (cars of one allocation leave
+    together) and with every car open and the whole round known (the ideal bound)
+    [% of population per 5 min]."""
     from batchrounds.montecarlo import compare_rules
+    from roundtrip.classical import design_passengers
+
+    from .basis import IDEAL, REALISABLE_CARS_OPEN, round_trip_basis
     g = scenario.group
+    k_real = min(REALISABLE_CARS_OPEN if cars_open is None else cars_open, g.cars)
     out = []
-    for k, basis in ((min(cars_open, g.cars), "realisable-bound"), (g.cars, "ideal-bound")):
-        c = compare_rules(scenario.building, g, [rule], g.design_load_persons, cars_open=k,
-                          traffic=scenario.traffic, trials=trials, seed=seed)
+    p = design_passengers(scenario.building, g, scenario.traffic)
+    for k in (k_real, g.cars):
+        basis = IDEAL if k == g.cars and g.cars > REALISABLE_CARS_OPEN else round_trip_basis(k, g.cars)
+        c = compare_rules(scenario.building, g, [rule], p, cars_open=k, traffic=scenario.traffic,
+                          trials=trials, seed=seed, threads=threads)
         r = c.to_dict()["rules"][-1]
+        ci = r["handling_capacity_pct_5min"] * r["ci95_s"] / r["round_trip_time_s"]
         out.append(Figure(f"handling capacity at design load, {rule}, {k} of {g.cars} cars open",
-                          r["handling_capacity_pct_5min"],
-                          r.get("handling_capacity_ci95_pct", None), "% of population per 5 min",
-                          basis))
+                          r["handling_capacity_pct_5min"], ci, "% of population per 5 min",
+                          basis, k))
     return tuple(out)
 
 
 def decide(scenario: Scenario, destination_control: str, criterion: ServiceCriterion, *,
-           cars_open: int, bound_rule: str = "sorted", seed: int = 0,
+           study=None, bounds=None, bound_rule: str = BOUND_RULE, seed: int = 0,
            replications: int = DECISION_REPLICATIONS, window_s: float = 5.0,
-           minutes: float = 60.0, with_sensitivity: bool = True, on_step=None) -> Decision:
-    """The decision for the file's building: the peak simulation at the design demand, each
-    control's handling capacity at the criterion, the two round-trip bounds, and the
-    sensitivity of the decision figures."""
+           minutes: float = 60.0, with_sensitivity: bool = True, threads=None,
+           on_step=None) -> Decision:
+    """The decision for the file's building: the peak simulation at the design demand
+    (``study``, or run here), each control's handling capacity at the criterion, the two
+    round-trip bounds (``bounds``, or run here) and the sensitivity of the decision figures."""
     from peak.simulation import simulate_peak
     t = scenario.traffic
-    study = simulate_peak(scenario.building, scenario.group, t, [destination_control],
-                          window_s=window_s, minutes=minutes, replications=replications,
-                          seed=seed)
+    if study is None:
+        study = simulate_peak(scenario.building, scenario.group, t, [destination_control],
+                              window_s=window_s, minutes=minutes, replications=replications,
+                              seed=seed)
     if on_step is not None:
         on_step()
     caps = tuple(capacity_at_criterion(scenario, [destination_control], criterion, seed=seed,
                                        replications=replications, window_s=window_s,
                                        minutes=minutes, on_step=on_step))
-    bounds = round_trip_bounds(scenario, bound_rule, cars_open, seed=seed)
+    if bounds is None:
+        bounds = round_trip_bounds(scenario, bound_rule, seed=seed, threads=threads)
     steps = ()
     if with_sensitivity:
         steps = tuple(sensitivity(scenario, destination_control, criterion, seed=seed,
                                   replications=replications, window_s=window_s,
                                   minutes=minutes, base=caps, on_step=on_step))
-    return Decision(scenario.building.name, t.arrival_rate_pct_5min, destination_control,
-                    criterion, study, caps, bounds, steps, int(seed))
+    return Decision(scenario.building.name, t.arrival_rate_pct_5min, scenario.group.cars,
+                    destination_control, criterion, study, caps, tuple(bounds), steps, int(seed))

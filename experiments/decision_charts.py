@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from .charts import _figure, _legend_below, _save, _style, _suptitle, rule_colour
+from .wording import client_name
 
 CONVENTIONAL = "conventional"
 _BASE = "#4d4d4d"
@@ -27,7 +28,7 @@ def control_colour(name: str) -> str:
 
 def _line(name: str) -> dict:
     return {"color": control_colour(name), "linewidth": 1.9,
-            "linestyle": "--" if name == CONVENTIONAL else "-", "label": name}
+            "linestyle": "--" if name == CONVENTIONAL else "-", "label": client_name(name)}
 
 
 def waiting_distribution_chart(study, out_dir, building_name: str, limits_s=(30.0, 60.0, 90.0),
@@ -154,6 +155,8 @@ def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: st
     Parameters
     ----------
     steps : list of experiments.decision.SensitivityStep
+        The step with ``monte_carlo`` set (the same inputs on another seed) is drawn as a
+        grey band around the inputs-as-given line, apart from the bars.
     base_gain_pct : float or None
         The gain with every input as in the file [% of population per 5 min, points].
 
@@ -163,8 +166,12 @@ def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: st
         ``sensitivity_tornado.png`` and ``.svg``.
     """
     base = 0.0 if base_gain_pct is None else base_gain_pct
+    noise = [abs(s.hc_gain_pct_5min - base) for s in steps
+             if getattr(s, "monte_carlo", False) and s.hc_gain_pct_5min is not None]
     by_input: dict = {}
     for s in steps:
+        if getattr(s, "monte_carlo", False):
+            continue
         by_input.setdefault(s.input, []).append(s)
     rows = []
     for name, pair in by_input.items():
@@ -185,6 +192,9 @@ def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: st
                 down = s.step.startswith("-")
                 ax.barh(y, s.hc_gain_pct_5min - base, left=base, height=0.55,
                         color=_DOWN if down else control_colour(control), edgecolor="white")
+        if noise and max(noise) > 0:
+            ax.axvspan(base - max(noise), base + max(noise), color="#d9d9d9", alpha=0.6,
+                       zorder=0, linewidth=0)
         ax.axvline(base, color="black", linewidth=1.2)
         ax.axvline(0.0, color=_BASE, linewidth=0.9, linestyle="--")
         ax.set_yticks(range(len(rows)))
@@ -192,9 +202,13 @@ def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: st
         ax.set_xlabel("gain in handling capacity at the criterion\n"
                       "[points of % of population per 5 min]")
         from matplotlib.patches import Patch
-        fig.legend([Patch(color=_DOWN), Patch(color=control_colour(control))],
-                   ["input moved down", "input moved up"], loc="outside lower center", ncols=2)
-        _suptitle(fig, f"{building_name}: what the answer turns on ({control} against "
-                       f"conventional control; black line: the inputs as given, "
-                       f"{base:+.2f} points)", fontsize="medium")
+        handles = [Patch(color=_DOWN), Patch(color=control_colour(control))]
+        labels = ["input moved down", "input moved up"]
+        if noise and max(noise) > 0:
+            handles.append(Patch(color="#d9d9d9"))
+            labels.append(f"Monte Carlo error: another seed moves it {max(noise):.2f} points")
+        fig.legend(handles, labels, loc="outside lower center", ncols=len(handles))
+        _suptitle(fig, f"{building_name}: what the answer turns on ({client_name(control)} "
+                       f"against conventional control, simulated in time; black line: the "
+                       f"inputs as given, {base:+.2f} points)", fontsize="medium")
         return _save(fig, out_dir, "sensitivity_tornado")

@@ -64,7 +64,7 @@ def format_number(value, decimals: int) -> str:
     return str(value)
 
 
-_WORDS = {"hc": "handling capacity", "rtt": "round-trip time", "ci95": "± 95 %",
+_WORDS = {"hc": "handling capacity", "rtt": "round-trip time", "ci95": "95 % interval",
           "pct": "%", "5min": "per 5 min", "s": "s"}
 _UNITS = (("_pct_5min", "[% / 5 min]"), ("_pct", "[%]"), ("_persons", "[persons]"),
           ("_mps", "[m/s]"), ("_s", "[s]"), ("_m", "[m]"))
@@ -84,8 +84,8 @@ def number_label(key: str) -> str:
             key, unit = key[: -len(suffix)], text
             break
     words = [_WORDS.get(w, w) for w in key.split("_") if w]
-    if words and words[-1] == "± 95 %":
-        words = words[:-2] + [words[-2] + ",", "95 % half-width"] if len(words) > 1 else words
+    if words and words[-1] == "95 % interval":
+        words = words[:-2] + [words[-2] + ",", "95 % interval (±)"] if len(words) > 1 else words
     return " ".join(words + ([unit] if unit else []))
 
 

@@ -22,7 +22,7 @@ from roundtrip import __version__
 from roundtrip.building import Scenario, Traffic
 
 from .outputs import write_atomic
-from .wording import CAUTION, count_of
+from .wording import CAUTION, client_name, client_source, count_of
 
 SWEEP_POINTS = 15
 
@@ -56,105 +56,80 @@ def _p(x) -> str:
     return f"{x:.1f}" if isinstance(x, (int, float)) and math.isfinite(x) else "n/a"
 
 
-def _headline(rule_rows: dict, demand: float, sizing: dict, cars: int) -> tuple[str, list, dict]:
-    """The answer in plain words, from the figures."""
-    base_name = next(iter(rule_rows))               # the baseline comes first
-    grouping = max(list(rule_rows)[1:], key=lambda r: rule_rows[r]["design_hc"])
-    g, base = rule_rows[grouping], rule_rows[base_name]
-    nums = {"hc_gain_pct": g["hc_gain_pct_vs_random"], "hc_gain_ci95_pct": g["hc_gain_ci95_pct"],
-            "rtt_gain_pct": g["rtt_gain_pct_vs_random"], "rtt_gain_ci95_pct": g["rtt_gain_ci95_pct"],
-            "demand_pct_5min": demand, "random_design_hc_pct_5min": base["design_hc"],
-            "grouping_design_hc_pct_5min": g["design_hc"]}
-    designs = {d["rule"]: d for d in sizing["designs"]}
-    saved = None
-    if designs[base_name]["found"] and designs[grouping]["found"]:
-        saved = designs[base_name]["cars"] - designs[grouping]["cars"]
-        nums["cars_saved"] = int(saved)
-    where = (f"at the design load (conventional control is saturated at this demand of "
-             f"{_p(demand)} % of the population in 5 minutes)" if base["design_hc"] < demand
-             else f"at this demand ({_p(demand)} % of the population in 5 minutes)")
-    gains = (g["hc_gain_pct_vs_random"], g["hc_gain_ci95_pct"], g["rtt_gain_pct_vs_random"],
-             g["rtt_gain_ci95_pct"])
-    if all(math.isfinite(x) for x in gains):
-        first = (f"Destination grouping (rule '{grouping}'; ideal bound: every car open to "
-                 f"allocation) raises handling capacity by {_p(gains[0])} % ± {_p(gains[1])} % "
-                 f"and shortens the round trip by {_p(gains[2])} % ± {_p(gains[3])} % against "
-                 f"conventional control {where}")
-    else:
-        first = (f"The gain of destination grouping (rule '{grouping}') over conventional "
-                 f"control {where} cannot be estimated from these batches: too few of them "
-                 f"carried passengers (run with more trials, or leave --trials out)")
-    with_cars = f"with {count_of(cars, 'car')}"
-    if base["design_hc"] >= demand:
-        verdict = (f"; it is not needed for capacity: conventional control already carries "
-                   f"{_p(base['design_hc'])} % at design load {with_cars}")
-        if saved:
-            verdict += (f", though grouping would meet the criteria with "
-                        f"{count_of(saved, 'car')} fewer")
-    elif g["design_hc"] >= demand:
-        verdict = (f"; conventional control carries only {_p(base['design_hc'])} % at design "
-                   f"load {with_cars}, destination grouping at most {_p(g['design_hc'])} % "
-                   f"(the bound)")
-        if saved:
-            verdict += (f", and it saves {count_of(saved, 'car')} against a conventional group "
-                        f"that meets the criteria")
-    else:
-        verdict = (f"; neither carries the demand {with_cars} (conventional "
-                   f"{_p(base['design_hc'])} %, grouping {_p(g['design_hc'])} % at design load)")
-        if saved is not None:
-            verdict += (f"; meeting the criteria takes "
-                        f"{count_of(designs[base_name]['cars'], 'car')} under conventional "
-                        f"control and {designs[grouping]['cars']} with grouping")
-    points = [
-        f"Conventional control: round-trip time {_p(base['round_trip_time_s'])} s, interval "
-        f"{_p(base['interval_s'])} s, {_p(base['expected_stops'])} stops per trip.",
-        f"Destination grouping ('{grouping}'): round-trip time {_p(g['round_trip_time_s'])} s, "
-        f"interval {_p(g['interval_s'])} s, {_p(g['expected_stops'])} stops per trip.",
-        "These gains assume every car of the group is open to allocation; the chart of gain "
-        "against cars open shows how much remains when fewer are.",
-    ]
-    return first + verdict + ".", points, nums
-
-
 def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: int = 2026,
             ci_target_pct: float = 0.5, trials: int | None = None,
-            max_trials: int = 1_000_000, quiet: bool = True, threads=None, stages=None) -> dict:
+            max_trials: int = 1_000_000, quiet: bool = True, threads=None, stages=None,
+            destination_control: str | None = None, criterion=None) -> dict:
     """Run the whole job and write ``report.html`` (and the charts, sweep.csv) into out_dir.
 
     ``out_dir`` should be a folder of this run alone (the command line gives the private
     folder of :func:`experiments.outputs.output_set`): the report embeds the charts this
     run drew there. Adaptive runs stop at ``max_trials`` (the sweeps at 400,000) or at the
     run limits (:func:`experiments.limits.trial_cap`). ``stages(text)`` is told each stage
-    as it begins (see :class:`experiments.progress.Stages`).
+    as it begins (see :class:`experiments.progress.Stages`). ``destination_control``: the
+    control the decision is stated for (default: the registry's declared one,
+    :func:`allocation.registry.headline_control`); ``criterion``: the service criterion
+    (default :class:`experiments.decision.ServiceCriterion`).
     """
     from .progress import no_stages
     stages = no_stages if stages is None else stages
     with _chart_worker() as worker:
         return _run_job(scenario, input_path, out_dir, worker, seed=seed,
                         ci_target_pct=ci_target_pct, trials=trials, max_trials=max_trials,
-                        quiet=quiet, threads=threads, stages=stages)
+                        quiet=quiet, threads=threads, stages=stages,
+                        destination_control=destination_control, criterion=criterion)
+
+
+def _bounds_from_sweep(opens, rule: str, cars: int) -> tuple:
+    """The realisable and ideal round-trip bounds of ``rule`` at design load, read from the
+    cars-open sweep (cars open 1 ... cars at the design demand)."""
+    from .basis import IDEAL, REALISABLE, REALISABLE_CARS_OPEN
+    from .decision import Figure
+    out = []
+    for k, basis in ((min(REALISABLE_CARS_OPEN, cars), REALISABLE), (cars, IDEAL)):
+        row = opens[(opens["rule"] == rule) & (opens["cars_open"] == k)].iloc[0]
+        hc = float(row["design_load_handling_capacity_pct_5min"])
+        rtt = float(row["design_load_round_trip_time_s"])
+        ci = hc * float(row["design_load_ci95_s"]) / rtt if rtt > 0 else math.nan
+        out.append(Figure(f"handling capacity at design load, {rule}, {k} of {cars} cars open",
+                          hc, ci, "% of population per 5 min", basis, k))
+    return tuple(out)
+
+
+def sizing_candidates(group, extra_cars: int = 3) -> dict:
+    """The sizing grid of the job: 1 ... cars + ``extra_cars`` cars, the file's car size and
+    speed with their standard neighbours (:func:`experiments.sizing.neighbours`)."""
+    from .sizing import STANDARD_LOADS_PERSONS, STANDARD_SPEEDS_MPS, neighbours
+    return {"cars_list": list(range(1, group.cars + extra_cars + 1)),
+            "loads": neighbours(group.rated_load_persons, STANDARD_LOADS_PERSONS),
+            "speeds": neighbours(group.rated_speed_mps, STANDARD_SPEEDS_MPS)}
 
 
 def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, max_trials,
-             quiet, threads, stages):
-    from roundtrip.classical import demand_calculation
-    from allocation.registry import default_rules
+             quiet, threads, stages, destination_control, criterion):
+    from allocation.registry import default_rules, headline_control
     from batchrounds.montecarlo import compare_rules
+    from roundtrip.classical import demand_calculation, is_uppeak
     from roundtrip.montecarlo import simulate_demand
 
-    from .report import write_report
-    from .sizing import default_criteria, size_group
-    from .sweep import demand_sweep
-
+    from .decision import BOUND_RULE, ServiceCriterion, decide
+    from .estimates import peak_study
     from .limits import trial_cap
+    from .report import write_report
+    from .sizing import size_by_service
+    from .sweep import demand_sweep
 
     b, g = scenario.building, scenario.group
     rules = default_rules()
     traffic = scenario.traffic or Traffic(12.0)
     demand = traffic.arrival_rate_pct_5min
+    dc = destination_control or headline_control()
+    criterion = criterion or ServiceCriterion()
+    uppeak = is_uppeak(traffic)
     run = dict(ci_target_pct=ci_target_pct, trials=trials, seed=seed, threads=threads)
     job = replace(scenario, traffic=traffic)
     sweep_cap = min(max_trials, 400_000)
+    warm = worker.submit(_warm_peak) if uppeak else None   # compile the peak kernels there
 
     stages("classical calculation")
     classical = demand_calculation(b, g, traffic, poisson=True)
@@ -162,76 +137,188 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
            "about 10 s)")
     mc = simulate_demand(b, g, traffic, **run, max_trials=trial_cap(
         max_trials, passengers_per_car=g.design_load_persons))
-    stages(f"allocation rules on common passengers ({', '.join(rules)}; each rule compiles "
-           f"on first use)")
+    stages(f"round-trip bounds: allocation rules on common passengers ({', '.join(rules)})")
     comparison = compare_rules(b, g, rules, mc.passengers_per_trip, traffic=traffic, **run,
                                max_trials=trial_cap(max_trials, cars=g.cars, rules=len(rules),
                                                     passengers_per_car=mc.passengers_per_trip))
-    stages(f"demand sweep, {SWEEP_POINTS} points")
+    stages(f"round-trip bounds: demand sweep, {SWEEP_POINTS} points")
     sweep = demand_sweep(job, demand_points(demand), rules, max_trials=sweep_cap,
                          quiet=quiet, **run)
-    stages(f"cars open to allocation, 1 to {g.cars}")
+    stages(f"round-trip bounds: cars open to allocation, 1 to {g.cars}")
     opens = demand_sweep(job, [demand], rules, cars_open_list=list(range(1, g.cars + 1)),
                          max_trials=sweep_cap, quiet=quiet, **run)
-    stages("sizing")
-    criteria = default_criteria(job)
-    sizing = size_group(job, rules, criteria, list(range(1, g.cars + 4)),
-                        [g.rated_load_persons], [g.rated_speed_mps], max_trials=max_trials,
-                        **run)
+    bounds = _bounds_from_sweep(opens, BOUND_RULE, g.cars)
+
+    decision = study = service = None
+    if uppeak:
+        if warm is not None:
+            warm.result()
+        stages("peak simulation at the demand, every control")
+        study = peak_study(job, None, seed=seed, threads=threads)
+        stages(f"handling capacity at the service criterion and its sensitivity "
+               f"(conventional and {dc})")
+        decision = decide(job, dc, criterion, study=study if dc in
+                          [r.control.name for r in study.runs] else None, bounds=bounds,
+                          seed=seed, threads=threads)
+        stages("sizing on the service criterion (peak simulation)")
+        service = size_by_service(job, dc, criterion, **sizing_candidates(g), seed=seed)
+
     stages("charts and the report")
+    at_demand = {r["rule"]: r for r in comparison.to_dict()["rules"]}
     design = opens[opens["cars_open"] == g.cars].set_index("rule")
-    at_demand = {r["rule"]: {**r, "design_hc": float(
-        design.loc[r["rule"], "design_load_handling_capacity_pct_5min"])}
-        for r in comparison.to_dict()["rules"]}
+    for name, r in at_demand.items():
+        r["design_hc"] = float(design.loc[name, "design_load_handling_capacity_pct_5min"])
+        if name != rules[0]:
+            r["basis"] = "ideal-bound" if g.cars > 2 else "realisable-bound"
 
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     write_atomic(out_dir / "sweep.csv", sweep.to_csv(index=False))
-    figures = []
     name = b.name
     # half the charts in the helper process (already warm), half here, at the same time
-    later = worker.submit(_later_charts, b, g, opens, comparison,
+    later = worker.submit(_later_charts, b, g, traffic, opens, comparison,
                           min(mc.passengers_per_trip, g.design_load_persons), seed, out_dir, name)
     from . import charts
-    paths = charts.sweep_charts(sweep, out_dir, name)
+    paths = []
+    if decision is not None:
+        from . import decision_charts as dch
+        paths += dch.waiting_distribution_chart(study, out_dir, name,
+                                                controls=("conventional", dc))
+        paths += dch.service_vs_demand_chart(list(decision.capacities), out_dir, name, criterion,
+                                             demand)
+        paths += dch.tornado_chart(list(decision.sensitivity), decision.gain_pct_5min, out_dir,
+                                   name, dc)
+    paths += charts.sweep_charts(sweep, out_dir, name)
     paths += later.result()
-    captions = _captions()
+    captions = _captions(dc)
+    figures = []
     for p in paths:
         if p.suffix == ".png":
             title, caption = captions.get(p.stem, (p.stem.replace("_", " "), ""))
             figures.append({"title": title, "caption": caption, "png": p})
 
-    headline, points, numbers = _headline(at_demand, demand, sizing, g.cars)
+    answer = _answer(decision, service, bounds, at_demand, mc, demand, g.cars, dc, traffic)
     digest = hashlib.sha256(Path(input_path).read_bytes()).hexdigest()
     stamp = {"liftsort_version": __version__, "seed": seed,
              "trials": f"{comparison.trials} batches at the design demand; adaptive runs to a "
-                       f"{ci_target_pct:g} % interval elsewhere" if trials is None else str(trials),
+                       f"{ci_target_pct:g} % interval elsewhere; peak simulation: "
+                       f"{_replications(study)}" if trials is None else str(trials),
              "input_sha256": digest,
              "generated_at": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC")}
     context = {
         "title": f"{name}: is destination control worth specifying?",
         "building": name,
-        "headline": headline,
-        "answer_points": points,
-        "headline_numbers": numbers,
+        "job": (f"Is destination control ({client_name(dc)}) worth specifying for this "
+                f"building, against conventional control, at the design demand of "
+                f"{demand:g} % of the population in 5 minutes?"),
+        "headline": answer["headline"],
+        "answer_points": answer["points"],
+        "headline_numbers": answer["numbers"],
         "inputs": input_rows(scenario),
-        "method": _method(),
+        "method": _method(dc, criterion),
         "assumptions": _assumptions() + ([] if scenario.traffic else [
             "The input gives no [traffic] section: a design demand of 12 % of the population "
             "in 5 minutes, up-peak, is assumed (common office practice)."]),
         "sources": _sources(),
-        "tables": _tables(classical, mc, at_demand, sizing, criteria),
+        "tables": _tables(classical, mc, at_demand, decision, service, bounds, study, dc),
         "figures": figures,
         "caution": CAUTION,
         "stamp": stamp,
     }
     report = write_report(context, out_dir)
     stages(f"report written: {report}")
-    return {"report": str(report), "headline": headline, "headline_numbers": numbers,
-            "figures": [str(p) for p in paths], "csv": str(out_dir / "sweep.csv"),
-            "stamp": stamp, "rules": list(at_demand.values()),
-            "sizing": {k: v for k, v in sizing.items() if k != "tried"},
-            "classical": classical.to_dict(), "monte_carlo": mc.to_dict()}
+    result = {"report": str(report), "headline": answer["headline"],
+              "headline_numbers": answer["numbers"],
+              "figures": [str(p) for p in paths], "csv": str(out_dir / "sweep.csv"),
+              "stamp": stamp, "destination_control": dc,
+              "rules": list(at_demand.values()),
+              "bounds": [f.to_dict() for f in bounds],
+              "classical": classical.to_dict(), "monte_carlo": mc.to_dict()}
+    if decision is not None:
+        d = decision.to_dict(service)
+        result.update({
+            "peak": study.to_dict(),
+            "capacity_at_criterion": d["capacity_at_criterion"],
+            "decision": {k: v for k, v in d.items() if k != "capacity_at_criterion"},
+            "sizing": {k: v for k, v in service.items() if k != "tried"},
+        })
+    else:
+        result.update({"peak": None, "capacity_at_criterion": [], "decision": None,
+                       "sizing": None})
+    return result
+
+
+def _replications(study) -> str:
+    if study is None:
+        return "not run (traffic is not up-peak)"
+    reps = sorted({len(r.per_replication) for r in study.runs})
+    return (f"{reps[0]} to {reps[-1]} replications of {study.period.measured_s / 60:g} min "
+            f"per control at the demand" if len(reps) > 1 else
+            f"{reps[0]} replications of {study.period.measured_s / 60:g} min per control")
+
+
+def _answer(decision, service, bounds, at_demand, mc, demand, cars, dc, traffic) -> dict:
+    """The headline in words, the points under it and the headline numbers."""
+    from .basis import label
+    from .decision import BOUND_RULE
+    realisable, ideal = bounds
+    name = client_name(dc)
+    if decision is None:
+        headline = (f"No answer from the peak simulation: it models up-peak traffic only, and "
+                    f"this building's traffic is a mix (incoming {traffic.incoming:g}, outgoing "
+                    f"{traffic.outgoing:g}, interfloor {traffic.interfloor:g}). The round-trip "
+                    f"figures below are bounds for destination grouping, not an answer: "
+                    f"{_p(realisable.value)} % of the population per 5 minutes with "
+                    f"{realisable.cars_open} cars open (the realisable bound), "
+                    f"{_p(ideal.value)} % with every car open (the ideal bound), against "
+                    f"{_p(next(iter(at_demand.values()))['design_hc'])} % for conventional "
+                    f"control at design load.")
+        numbers = {"demand_pct_5min": demand,
+                   "realisable_bound_hc_pct_5min": realisable.value,
+                   "ideal_bound_hc_pct_5min": ideal.value}
+        return {"headline": headline, "points": [], "numbers": numbers}
+    v = decision.verdict(service)
+    conv_run, dc_run = decision.study.runs[0], decision.study.run(dc)
+    c, d = conv_run.summary, dc_run.summary
+    diff, diff_ci = decision.ttd_difference()
+
+    def peak_line(who, s, run):
+        sat = " (saturated: the lobby queue grows through the hour)" if run.saturated else ""
+        return (f"{who}, simulated in time at {demand:g} %: average waiting time "
+                f"{s['average_waiting_time_s'].mean:.1f} s (95 % interval "
+                f"± {s['average_waiting_time_s'].ci95:.1f} s), 95th-percentile wait "
+                f"{s['waiting_time_p95_s'].mean:.1f} s, average time to destination "
+                f"{s['average_time_to_destination_s'].mean:.1f} s, handling capacity "
+                f"delivered {s['handling_capacity_pct_5min'].mean:.1f} %{sat}.")
+    cap_c, cap_d = decision.capacity("conventional"), decision.capacity(dc)
+    fmt = (lambda x: "none of the demands tried" if x is None else f"{x:.1f} %")
+    points = [peak_line("Conventional control", c, conv_run),
+              peak_line(f"Destination control ({name})", d, dc_run),
+              f"Handling capacity at the service criterion (simulated in time): conventional "
+              f"control {fmt(cap_c)}, destination control {fmt(cap_d)}"
+              + (f", a gain of {v['gain_pct_5min']:+.1f} points." if v["gain_pct_5min"] is not None
+                 else "."),
+              f"Time to destination, destination control less conventional, on the same "
+              f"arrivals: {diff:+.1f} s (95 % interval ± {diff_ci:.1f} s).",
+              f"Round-trip bounds for destination grouping ('{BOUND_RULE}'), not answers: "
+              f"{_p(realisable.value)} % at design load with {realisable.cars_open} cars open "
+              f"({label(realisable.basis)}); {_p(ideal.value)} % with every car open "
+              f"({label(ideal.basis)}); conventional control "
+              f"{_p(next(iter(at_demand.values()))['design_hc'])} %."]
+    turns = decision.turns_on()
+    points.append("The answer turns on: " + ", ".join(turns) + "." if turns else
+                  "No input moved by its step in the sensitivity study changes the answer.")
+    numbers = {"demand_pct_5min": demand,
+               "conventional_average_wait_s": c["average_waiting_time_s"].mean,
+               "destination_average_wait_s": d["average_waiting_time_s"].mean,
+               "conventional_hc_at_criterion_pct_5min": cap_c,
+               "destination_hc_at_criterion_pct_5min": cap_d}
+    if v["margin_pct_5min"] is not None:
+        numbers["margin_pct_5min"] = v["margin_pct_5min"]
+    if v["cars_saved"]:
+        numbers["cars_saved"] = v["cars_saved"]
+    numbers = {k: x for k, x in numbers.items() if x is not None}
+    return {"headline": v["text"], "points": points, "numbers": numbers}
 
 
 @contextlib.contextmanager
@@ -292,77 +379,121 @@ def _warm_up() -> None:
     import seaborn  # noqa: F401
 
 
-def _later_charts(building, group, opens, comparison, passengers_per_car, seed, out_dir, name):
+def _warm_peak() -> None:
+    """Compile (or load) the peak simulation's kernels in the chart process, while the main
+    process runs the round trips: both processes then share numba's disk cache."""
+    from peak.simulation import warm_up
+    warm_up()
+
+
+def _later_charts(building, group, traffic, opens, comparison, passengers_per_car, seed,
+                  out_dir, name):
     from allocation.registry import default_rules
+    from roundtrip.classical import is_uppeak
 
     from . import charts
     paths = charts.cars_open_chart(opens, out_dir, name)
     paths += charts.distribution_charts(comparison, out_dir, name)
     paths += charts.batch_diagram(building, group, rules=tuple(default_rules()[:2]),
                                   passengers_per_car=passengers_per_car, seed=seed,
-                                  out_dir=out_dir, building_name=name)
+                                  out_dir=out_dir, building_name=name,
+                                  design_traffic_is_uppeak=is_uppeak(traffic))
     return paths
 
 
-def _captions() -> dict:
+def _captions(dc: str) -> dict:
+    name = client_name(dc)
     return {
-        "rtt_interval_vs_demand": ("Round-trip time and interval against demand",
+        "waiting_distribution": (
+            "Waiting time: the shape of the trade (simulated in time)",
+            f"Share of passengers who wait longer than a given time, at the design demand, "
+            f"under conventional control and destination control ({name}). Destination "
+            f"control groups passengers into fewer stops, so cars come back sooner, but it "
+            f"may make some passengers wait for a later car."),
+        "service_vs_demand": (
+            "Service against demand (simulated in time)",
+            "Average waiting time and average time to destination against demand for each "
+            "control, with the service criterion; bands are 95 % intervals over replications. "
+            "The dotted line of each control marks its handling capacity at the criterion: "
+            "the highest demand at which the upper end of every interval still meets it."),
+        "sensitivity_tornado": (
+            "What the answer turns on (simulated in time)",
+            "Destination control's gain in handling capacity at the criterion with each input "
+            "moved down and up by the stated step; the grey band is the Monte Carlo error "
+            "(the same inputs on another seed), apart from the inputs."),
+        "rtt_interval_vs_demand": ("Round-trip time and interval against demand (ideal bound)",
                                    "Each rule at the car load conventional control needs for the "
-                                   "demand; bands are 95 % intervals."),
-        "capacity_vs_demand": ("Handling capacity at design load against demand",
+                                   "demand, every car open to allocation and each round known "
+                                   "in full: for destination rules an ideal bound, not an "
+                                   "answer; bands are 95 % intervals."),
+        "capacity_vs_demand": ("Handling capacity at design load against demand (ideal bound)",
                                "A rule carries the demand while its level lies above the demand "
-                               "line; where they cross, it saturates."),
-        "gain_vs_demand": ("Grouping gain against demand",
-                           "Gain of each rule over conventional control on the same passengers, "
-                           "with paired 95 % intervals."),
-        "gain_vs_cars_open": ("Gain against the cars open to allocation",
+                               "line; where they cross, it saturates. Destination rules with "
+                               "every car open: the ideal bound."),
+        "gain_vs_demand": ("Grouping gain against demand (ideal bound)",
+                           "Gain of each destination rule over conventional control on the same "
+                           "passengers, with paired 95 % intervals, every car open: the ideal "
+                           "bound, which no real destination control reaches."),
+        "gain_vs_cars_open": ("Gain against the cars open to allocation (the bounds)",
                               "With one car open every rule is conventional control; the gain "
-                              "grows as more cars share the allocation. With k cars open the "
-                              "group works in blocks of k cars (and one smaller block when k "
-                              "does not divide the cars), so such a k gains less than its "
-                              "neighbours suggest."),
-        "stops_distribution": ("Stops per round trip", "Share of car trips by number of stops."),
-        "reversal_distribution": ("Highest reversal floor", "Share of car trips by the highest "
-                                  "floor reached."),
+                              "grows as more cars share the allocation. Two cars open is the "
+                              "realisable bound (the car loading and the next), every car open "
+                              "the ideal bound. With k cars open the group works in blocks of "
+                              "k cars (and one smaller block when k does not divide the cars), "
+                              "so such a k gains less than its neighbours suggest."),
+        "stops_distribution": ("Stops per round trip (ideal bound)",
+                               "Share of car trips by number of stops, every car open."),
+        "reversal_distribution": ("Highest reversal floor (ideal bound)",
+                                  "Share of car trips by the highest floor reached, every car "
+                                  "open."),
         "batch_diagram": ("Who rode which car to which floor",
-                          "One sampled batch: conventional loading mixes destinations in every "
-                          "car; destination grouping gives each car a few neighbouring floors."),
+                          "One sampled up-peak round: conventional loading mixes destinations "
+                          "in every car; destination grouping gives each car a few "
+                          "neighbouring floors."),
     }
 
 
-def _method() -> list[str]:
+def _method(dc: str, criterion) -> list[str]:
     return [
-        "Classical calculation: the up-peak round-trip time RTT = 2·H·t_v + (S+1)·t_s + 2·P·t_p "
-        "(plus 2·d_x/v for an express zone), with the expected stops S and highest reversal floor "
-        "H for the floor populations, the interval RTT / cars and the 5-minute handling capacity "
-        "300·P / interval, solved for the car load P that carries the demand.",
-        "Monte Carlo round trips: each car's passengers arrive at random over its interval "
-        "(Poisson counts, the same passenger model as the classical column); each car's trip is "
-        "timed on the real floor levels with ideal jerk-limited flights, door and transfer times, "
-        "with at most the rated load aboard; whoever a car cannot take waits for the next one, so "
-        "nobody is dropped. The demand sets the load where the passengers carried match the "
-        "arrivals. Trials are added until the 95 % interval of the round-trip time is within the "
-        "target.",
-        "Allocation rules: conventional control ('random') loads cars in arrival order; "
-        "destination rules group passengers by floor. All rules run on the very same sampled "
-        "passengers, each car carrying as many as under conventional control, so their "
-        "differences are measured with paired intervals.",
+        f"Peak simulation (the answer): passengers arrive one by one at random (a Poisson "
+        f"process at the design demand) over a measured hour after a warm-up; each car "
+        f"leaves the lobby when it has its departure load or when its lobby dwell has run, "
+        f"flies the trip of its passengers stop by stop on the real floor levels with ideal "
+        f"jerk-limited flights, door and transfer times, and returns. Under conventional "
+        f"control passengers board the car at the lobby in arrival order; under destination "
+        f"control ({client_name(dc)}) each passenger is given a car as they register. "
+        f"Nobody is dropped: whoever does not fit waits for the next car. Independent "
+        f"replications give each figure its 95 % interval; both controls see the same "
+        f"arrivals.",
+        f"Handling capacity at the service criterion: for each control, the highest demand at "
+        f"which the simulation still meets the criterion ({criterion.describe()}), each "
+        f"demand passing only if the upper end of every 95 % interval meets its limit; found "
+        f"on a 1 % grid of demands and refined by bisection to 0.1 %.",
+        "Sensitivity: the decision figures recomputed with each main input moved by a stated "
+        "step; the Monte Carlo error (the same inputs on another seed) is shown apart.",
+        "Sizing: groups are tried in the order a client pays for them (fewest cars, then the "
+        "smaller installation, rated load times rated speed); a control's design is the first "
+        "group at which it meets the criterion in the peak simulation. A saving of cars is "
+        "claimed only from these simulated figures.",
+        "Round-trip bounds: the classical up-peak round-trip time RTT = 2·H·t_v + (S+1)·t_s + "
+        "2·P·t_p (ISO 8100-32), checked by a Monte Carlo of round trips; destination grouping "
+        "is bounded by sharing each round's passengers, known in full, between the cars open "
+        "to one allocation: two cars (the realisable bound) or every car (the ideal bound). "
+        "These are upper bounds, never the answer.",
     ]
 
 
 def _assumptions() -> list[str]:
     return [
-        "Up-peak traffic unless the input gives a traffic mix; passengers arrive independently, "
-        "at random (Poisson counts per car interval).",
-        "Every rule is compared at the same car load: each car carries the passengers "
-        "conventional control would give it; a rule that groups passengers would in practice "
-        "run lighter cars at the same demand.",
-        "The design load limits how many are in the car at once (the mean load on the busiest "
-        "stretch of the trip); no car ever holds more than its rated load.",
-        "Ideal kinematics: no levelling, re-levelling, door dwell or passenger hesitation beyond "
-        "the stated times; no interference between cars at the lobby.",
-        "Destination grouping with every car open to allocation is an upper bound on what a "
-        "real destination control can achieve.",
+        "Up-peak traffic for the peak simulation; passengers arrive independently, at random.",
+        "Ideal kinematics: no levelling, re-levelling or passenger hesitation beyond the stated "
+        "times; no interference between cars at the lobby.",
+        "Cars leave the lobby with their departure load (the capacity factor times the rated "
+        "load, rounded up) or when the lobby dwell has run since their first boarding.",
+        "The round-trip bounds compare every rule at the same car load: each car carries the "
+        "passengers conventional control would give it.",
+        "No car ever holds more than its rated load; whoever does not fit waits for the next "
+        "car.",
     ]
 
 
@@ -371,52 +502,131 @@ def _sources() -> list[str]:
         "ISO 8100-32:2020, Lifts for the transport of persons and goods - Part 32: Planning and "
         "selection of passenger lifts to be installed in office, hotel and residential buildings "
         "(up-peak round-trip time, S and H, ideal kinematics).",
-        "CIBSE Guide D: Transportation systems in buildings, 2015 (round-trip time, waiting-time "
-        "estimate, office up-peak planning criteria).",
+        "CIBSE Guide D: Transportation systems in buildings, 2015 (round-trip time, "
+        "waiting-time estimate, office up-peak planning criteria, destination control).",
         "\"An efficient method for generating discrete random variables with general "
         "distributions\", ACM Transactions on Mathematical Software, 1977 (alias sampling).",
+        "The service criterion's limits (average wait 30 s, 95th-percentile wait 90 s) are "
+        "common practice for office up-peak.",
     ]
 
 
-def _tables(classical, mc, at_demand, sizing, criteria) -> list[dict]:
-    from allocation.registry import get_rule
+def _ci(x) -> float:
+    return x.ci95 if math.isfinite(x.ci95) else math.nan
+
+
+def _tables(classical, mc, at_demand, decision, service, bounds, study, dc) -> list[dict]:
+    from allocation.registry import RULES, get_policy, get_rule
+
+    from .basis import label
+    tables = []
+    if decision is not None:
+        runs = [study.runs[0], study.run(dc)]
+        rows = []
+        for text, unit, key in (("average waiting time", "s", "average_waiting_time_s"),
+                                ("waiting time, 95th percentile", "s", "waiting_time_p95_s"),
+                                ("average time to destination", "s",
+                                 "average_time_to_destination_s"),
+                                ("time to destination, 95th percentile", "s",
+                                 "time_to_destination_p95_s"),
+                                ("average transit time", "s", "average_transit_time_s"),
+                                ("handling capacity delivered", "% / 5 min",
+                                 "handling_capacity_pct_5min"),
+                                ("mean departure load", "persons", "mean_departure_load_persons"),
+                                ("mean round-trip time", "s", "round_trip_time_s")):
+            row = [text, unit]
+            for r in runs:
+                row += [r.summary[key].mean, _ci(r.summary[key])]
+            rows.append(row)
+        rows.append(["saturated", "", *sum((["yes" if r.saturated else "no", ""] for r in runs),
+                                           [])])
+        tables.append({
+            "title": f"Peak simulation at the design demand of {study.demand_pct_5min:g} % "
+                     f"(simulated in time; {_replications(study)})",
+            "columns": ["quantity", "unit", "conventional", "95 % interval, ±",
+                        client_name(dc), "95 % interval, ±"],
+            "rows": rows})
+        caps = {c.control: c for c in decision.capacities}
+        tables.append({
+            "title": "Destination control's three figures, each with its basis",
+            "columns": ["figure", "basis", "conventional [% / 5 min]",
+                        "destination control [% / 5 min]", "95 % interval, ± [% / 5 min]"],
+            "rows": [["handling capacity at the service criterion", label("peak"),
+                      caps["conventional"].handling_capacity_pct_5min,
+                      caps[dc].handling_capacity_pct_5min, "bisection to 0.1"],
+                     *[[f"handling capacity at design load, {b.cars_open} cars open",
+                        label(b.basis), at_demand[next(iter(at_demand))]["design_hc"],
+                        b.value, b.ci95] for b in bounds]]})
+        steps = [s for s in decision.sensitivity if not s.monte_carlo]
+        mc_steps = [s for s in decision.sensitivity if s.monte_carlo]
+        tables.append({
+            "title": "Sensitivity of the decision (simulated in time): handling capacity at "
+                     "the criterion with each input moved",
+            "columns": ["input", "step", "conventional [% / 5 min]",
+                        "destination control [% / 5 min]", "gain [points]",
+                        "time to destination, difference [s]", "answer"],
+            "rows": [["inputs as given", "", caps["conventional"].handling_capacity_pct_5min,
+                      caps[dc].handling_capacity_pct_5min, decision.gain_pct_5min,
+                      decision.ttd_difference()[0], decision.outcome]]
+            + [[s.input, s.step, s.conventional_pct_5min, s.destination_pct_5min,
+                s.hc_gain_pct_5min, s.ttd_difference_s, s.outcome] for s in steps]
+            + [[f"Monte Carlo error (apart): {s.step}", "", s.conventional_pct_5min,
+                s.destination_pct_5min, s.hc_gain_pct_5min, s.ttd_difference_s, s.outcome]
+               for s in mc_steps]})
+        tables.append({
+            "title": f"Sizing on the service criterion (simulated in time, at "
+                     f"{service['demand_pct_5min']:g} %; order: {service['cost_order']})",
+            "columns": ["control", "cars", "rated load [persons]", "rated speed [m/s]",
+                        "door open + close [s]", "average wait [s]", "95th-percentile wait [s]",
+                        "time to destination [s]", "handling capacity [% / 5 min]"],
+            "rows": [[client_name(d["control"], with_key=False),
+                      d["cars"] if d["found"] else "none found",
+                      d.get("rated_load_persons", ""), d.get("rated_speed_mps", ""),
+                      (d["door_open_s"] + d["door_close_s"]) if d["found"] else "",
+                      d.get("average_waiting_time_s", ""), d.get("waiting_time_p95_s", ""),
+                      d.get("average_time_to_destination_s", ""),
+                      d.get("handling_capacity_pct_5min", "")]
+                     for d in service["designs"]]})
     c, m = classical.to_dict(), mc.to_dict()
-    t1 = {"title": f"Conventional control at the design demand: classical formula and Monte Carlo "
-                   f"({c['passenger_model']} passenger counts, {c['traffic_mix']} traffic)",
-          "columns": ["quantity", "classical", "Monte Carlo", "± 95 %", "unit"],
-          "rows": [["passengers per trip", c["passengers_per_trip"], m["passengers_per_trip"], "", "persons"],
-                   ["round-trip time", c["round_trip_time_s"], m["round_trip_time_s"], m["ci95_s"], "s"],
-                   ["interval", c["interval_s"], m["interval_s"], m["ci95_s"] / mc.cars, "s"],
-                   ["stops", c["expected_stops"], m["expected_stops"], m["expected_stops_ci95"], ""],
-                   ["highest reversal floor", c["highest_reversal_floor"],
-                    m["highest_reversal_floor"], m["highest_reversal_floor_ci95"], ""],
-                   ["passengers carried per trip", c["passengers_per_trip"],
-                    m["passengers_carried_per_trip"], m["passengers_carried_ci95"], "persons"],
-                   ["car load", c["car_load_pct"], m["car_load_pct"], "", "% of rated load"],
-                   ["handling capacity (carried)", c["handling_capacity_pct_5min"],
-                    m["handling_capacity_pct_5min"], "", "% / 5 min"],
-                   ["trips that leave someone behind", "", 100.0 * m["left_behind_share"], "", "%"],
-                   ["saturated", "yes" if c["saturated"] else "no",
-                    "yes" if m["saturated"] else "no", "", ""]]}
-    t2 = {"title": f"Allocation rules at the design demand (same passengers, "
-                   f"{c['passenger_model']} passenger counts, every car open to allocation: the "
-                   f"ideal bound)",
-          "columns": ["rule", "RTT [s]", "± [s]", "interval [s]", "stops", "highest floor",
-                      "HC gain [%]", "±", "HC at design load [%/5 min]"],
-          "rows": [[r["rule"], r["round_trip_time_s"], r["ci95_s"], r["interval_s"],
-                    r["expected_stops"], r["highest_reversal_floor"], r["hc_gain_pct_vs_random"],
-                    r["hc_gain_ci95_pct"], r["design_hc"]] for r in at_demand.values()]}
-    t3 = {"title": f"Sizing: smallest group with interval ≤ {criteria.interval_max_s:g} s at the "
-                   f"demand and handling capacity ≥ {criteria.hc_min_pct:g} % at design load "
-                   f"(destination "
-                   f"rules with {sizing['cars_open']} cars open to allocation)",
-          "columns": ["rule", "cars", "rated load [persons]", "speed [m/s]", "interval [s]",
-                      "HC [%/5 min]"],
-          "rows": [[d["rule"], d["cars"] if d["found"] else "none found",
-                    d["rated_load_persons"] or "", d["rated_speed_mps"] or "",
-                    d["interval_s"] if d["found"] else "", d["handling_capacity_pct_5min"] if d["found"] else ""]
-                   for d in sizing["designs"]]}
-    t4 = {"title": "The allocation rules",
-          "columns": ["rule", "what it does", "source"],
-          "rows": [[name, get_rule(name).summary, get_rule(name).source] for name in at_demand]}
-    return [t1, t2, t3, t4]
+    tables.append({
+        "title": f"Conventional control at the design demand by round trips: classical formula "
+                 f"and Monte Carlo ({c['passenger_model']} passenger counts, "
+                 f"{c['traffic_mix']} traffic)",
+        "columns": ["quantity", "classical", "Monte Carlo", "95 % interval, ±", "unit"],
+        "rows": [["passengers per trip", c["passengers_per_trip"], m["passengers_per_trip"], "",
+                  "persons"],
+                 ["round-trip time", c["round_trip_time_s"], m["round_trip_time_s"], m["ci95_s"],
+                  "s"],
+                 ["interval", c["interval_s"], m["interval_s"], m["ci95_s"] / mc.cars, "s"],
+                 ["stops", c["expected_stops"], m["expected_stops"], m["expected_stops_ci95"],
+                  "stops"],
+                 ["highest reversal floor", c["highest_reversal_floor"],
+                  m["highest_reversal_floor"], m["highest_reversal_floor_ci95"], "floor"],
+                 ["passengers carried per trip", c["passengers_per_trip"],
+                  m["passengers_carried_per_trip"], m["passengers_carried_ci95"], "persons"],
+                 ["car load", c["car_load_pct"], m["car_load_pct"], "", "% of rated load"],
+                 ["handling capacity (carried)", c["handling_capacity_pct_5min"],
+                  m["handling_capacity_pct_5min"], "", "% / 5 min"],
+                 ["trips that leave someone behind", "", 100.0 * m["left_behind_share"], "", "%"],
+                 ["saturated", "yes" if c["saturated"] else "no",
+                  "yes" if m["saturated"] else "no", "", ""]]})
+    tables.append({
+        "title": f"Allocation rules at the design demand by round trips (the same passengers, "
+                 f"{c['passenger_model']} passenger counts; destination rules with every car "
+                 f"open: the ideal bound, not an answer)",
+        "columns": ["rule", "basis", "round-trip time [s]", "95 % interval, ± [s]",
+                    "interval [s]", "stops", "highest floor [floor]",
+                    "handling-capacity gain [%]", "95 % interval, ± [%]",
+                    "handling capacity at design load [% / 5 min]"],
+        "rows": [[client_name(r["rule"]), label(r["basis"]) if r.get("basis") else "",
+                  r["round_trip_time_s"], r["ci95_s"], r["interval_s"], r["expected_stops"],
+                  r["highest_reversal_floor"], r["hc_gain_pct_vs_random"],
+                  r["hc_gain_ci95_pct"], r["design_hc"]] for r in at_demand.values()]})
+    entries = [get_rule(n) for n in at_demand]
+    if decision is not None and dc not in at_demand:
+        entries.append(get_rule(dc) if dc in RULES else get_policy(dc))
+    tables.append({
+        "title": "The controls",
+        "columns": ["control", "what it does", "source"],
+        "rows": [[client_name(e.name), e.summary, client_source(e.source)] for e in entries]})
+    return tables

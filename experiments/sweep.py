@@ -15,7 +15,10 @@ rated load): its handling capacity there is the most demand it can carry, so a
 rule saturates where the demand line crosses it.
 
 The result is one tidy table (one row per rule per point) with every figure
-and its 95 % interval.
+and its 95 % interval. A destination rule's rows carry their ``basis``
+(:mod:`experiments.basis`): ``realisable-bound`` with at most 2 cars open,
+``ideal-bound`` with more; these are bounds, not answers (the peak simulation
+gives those). Conventional control's rows leave it empty.
 """
 from __future__ import annotations
 
@@ -47,9 +50,13 @@ def demand_sweep(scenario: Scenario, arrivals, rules, *, cars_list=None, cars_op
     """The tidy sweep table (pandas DataFrame): one row per rule per point."""
     import pandas as pd
 
+    from allocation.registry import baseline_rule
     from batchrounds.montecarlo import compare_rules
     from roundtrip.classical import design_passengers
     from roundtrip.montecarlo import simulate_demand
+
+    from .basis import round_trip_basis
+    base_rule = baseline_rule()
 
     base_traffic = scenario.traffic or Traffic(arrivals[0])
     cars_list = cars_list or [scenario.group.cars]
@@ -98,6 +105,7 @@ def demand_sweep(scenario: Scenario, arrivals, rules, *, cars_list=None, cars_op
                     "trials": d["trials"],
                     "seed": d["seed"],
                     **r,
+                    "basis": "" if r["rule"] == base_rule else round_trip_basis(k, cars),
                     "design_load_round_trip_time_s": at_design["round_trip_time_s"],
                     "design_load_ci95_s": at_design["ci95_s"],
                     "design_load_interval_s": at_design["interval_s"],

@@ -80,7 +80,10 @@ class LiftGroup:
     All times in seconds, speeds in m/s, acceleration in m/s^2, jerk in m/s^3.
     ``lobby_dwell_s`` is how long a car waits at the main lobby, from its first
     passenger's boarding, before it leaves with fewer than its departure load
-    (the time-based peak simulation uses it).
+    (the time-based peak simulation uses it). ``times_scale_with_car_size``: when a
+    sizing search tries other car sizes, their door and transfer times scale with the
+    standard door width of the car size (see ``experiments.sizing.candidate_group``);
+    otherwise every candidate keeps these times.
     """
 
     cars: int
@@ -95,6 +98,7 @@ class LiftGroup:
     transfer_out_s: float = 1.2
     capacity_factor: float = 0.8
     lobby_dwell_s: float = 10.0
+    times_scale_with_car_size: bool = False
 
     @property
     def design_load_persons(self) -> float:

@@ -27,6 +27,7 @@ The file has three sections; ``[traffic]`` is needed only for demand mode::
     transfer_out_s = 1.2          # optional, default 1.2
     capacity_factor = 0.8         # optional, default 0.8
     lobby_dwell_s = 10.0          # optional, default 10 (peak simulation)
+    times_scale_with_car_size = false   # optional: sizing scales door and transfer times
 
     [traffic]
     arrival_rate_pct_5min = 12.0  # optional when profile_pct_5min is given
@@ -155,7 +156,7 @@ class Plausible(NamedTuple):
 
 @dataclass(frozen=True)
 class _Key:
-    kind: str                      # "number", "integer", "text", "list", "number-or-list"
+    kind: str                      # "number", "integer", "text", "boolean", "list", "number-or-list"
     allowed: str                   # what is allowed, in words, with the unit
     check: Callable[[float], bool] | None = None
     required: bool = True
@@ -255,6 +256,11 @@ _GROUP = {
                           plausible=Plausible(0.0, 120.0, "s",
                                               "a lobby dwell of 5 to 15 s is usual in up-peak; "
                                               "common practice")),
+    "times_scale_with_car_size": _Key("boolean", "true or false: when sizing tries other car "
+                                      "sizes, scale their door and transfer times with the "
+                                      "car's standard door width (default false: every "
+                                      "candidate keeps the file's times)", required=False,
+                                      default=False),
 }
 #: Accepted design demands [% of the population per 5 min] (also for `sweep --arrival`).
 ARRIVAL_RATE = Plausible(0.5, 100.0, "% of the population per 5 min",
@@ -358,6 +364,11 @@ def _read_value(sec: str, name: str, spec: _Key, table: dict, out: _Collector):
     if spec.kind == "text":
         if not isinstance(value, str):
             out.bad(path, value, spec.allowed + " in quotes")
+            return None
+        return value
+    if spec.kind == "boolean":
+        if not isinstance(value, bool):
+            out.bad(path, value, spec.allowed + " (unquoted)")
             return None
         return value
     if spec.kind == "integer":

@@ -174,9 +174,19 @@ def test_demo_prints_a_table(capsys, tmp_path):
     assert rc == 0 and err == ""
     assert "Larkspur Exchange" in out
     lines = out.splitlines()
-    assert set(lines[1]) == {"-"}                  # the table's title rule
+    # it leads with the peak-simulated comparison, conventional control first
+    head = next(i for i, line in enumerate(lines) if line.startswith("quantity"))
+    assert "simulated in time" in lines[head - 1]
+    assert lines[head].split()[2] == "conventional" and "destination control" in lines[head]
+    assert set(lines[head + 1].replace(" ", "")) == {"-"}
+    assert lines[head + 2].startswith("average waiting time")
+    verdict = next(i for i, line in enumerate(lines) if "service criterion" in line)
+    bounds = next(i for i, line in enumerate(lines) if line.startswith("Round-trip bounds"))
+    method = next(i for i, line in enumerate(lines) if line.startswith("Method check"))
+    assert head < verdict < bounds < method
+    assert "(realisable-bound)" in lines[bounds] and "(ideal-bound)" in lines[bounds]
     for label in ("round-trip time RTT", "interval INT", "handling capacity", "car load"):
-        assert any(line.startswith(label) for line in lines)
+        assert any(line.startswith(label) for line in lines[method:])
     assert (tmp_path / "demo" / "report.html").is_file()
 
 

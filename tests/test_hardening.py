@@ -298,16 +298,19 @@ def test_an_unexpected_error_is_a_short_bug_report_and_a_traceback_only_with_deb
 
 
 def test_report_headline_never_shows_nan():
-    # Before: "raises handling capacity by nan % ± nan %" (arrival 0.1 %, --trials 60).
-    from experiments.report_job import _headline
+    # Before: "raises handling capacity by nan % ± nan %" (arrival 0.1 %, --trials 60). A
+    # figure that could not be estimated shows as "n/a", never "nan".
+    from experiments.decision import Figure
+    from experiments.report_job import _answer
+    from roundtrip.building import Traffic
     nan = math.nan
-    row = {"design_hc": 10.0, "hc_gain_pct_vs_random": nan, "hc_gain_ci95_pct": nan,
-           "rtt_gain_pct_vs_random": nan, "rtt_gain_ci95_pct": nan,
-           "round_trip_time_s": nan, "interval_s": nan, "expected_stops": nan}
-    sizing = {"designs": [{"rule": "random", "found": False}, {"rule": "sorted", "found": False}]}
-    text, points, _ = _headline({"random": dict(row), "sorted": dict(row)}, 12.0, sizing, 1)
-    assert "nan" not in (text + " ".join(points)).lower()
-    assert "cannot be estimated" in text and "with 1 car " in text
+    bounds = (Figure("b", nan, nan, "%", "realisable-bound", 2),
+              Figure("b", nan, nan, "%", "ideal-bound", 5))
+    rows = {"random": {"design_hc": nan}, "sorted": {"design_hc": nan}}
+    a = _answer(None, None, bounds, rows, None, 12.0, 5, "least-added-time",
+                Traffic(12.0, 0.5, 0.3, 0.2))
+    assert "nan" not in (a["headline"] + " ".join(a["points"])).lower()
+    assert "n/a" in a["headline"] and "not an answer" in a["headline"]
 
 
 # ------------------------------------------------------------------ output sets

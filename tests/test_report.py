@@ -15,7 +15,10 @@ from experiments.report import format_number, number_label, render_report, write
 
 from .report_context import HOSTILE_NAME
 
-SECTIONS = ["answer", "inputs", "method", "assumptions", "sources", "results", "charts",
+# The answer first, then the figures it rests on, then how they were made (issue: the
+# report leads with the peak-simulated comparison and the verdict, then the bounds, then
+# the method).
+SECTIONS = ["answer", "results", "charts", "method", "assumptions", "sources", "inputs",
             "caution", "stamp"]
 
 

@@ -97,7 +97,8 @@ def test_schedule_is_the_reference_trip_in_time(t):
     top = floors.index(max(floors)) if floors else 0
     assert all(a < b for a, b in zip(floors[:top], floors[1:top + 1]))
     assert all(a > b for a, b in zip(floors[top:], floors[top + 1:]))
-    lobby_traffic = any(o == 0 or d == 0 for o, d in pairs) or not pairs
+    carried = [p for p, b in zip(pairs, s.board_stop) if b >= 0]   # who fitted decides
+    lobby_traffic = any(o == 0 or d == 0 for o, d in carried) or not carried
     assert s.stop_floors[0] == s.stop_floors[-1] == (0 if lobby_traffic else min(s.stop_floors))
     for i, (orig, dest) in enumerate(pairs):
         if s.board_stop[i] >= 0:

@@ -78,6 +78,24 @@ def _add_run_options(p: argparse.ArgumentParser) -> None:
                    help="compute threads (default: all cores); results do not depend on it")
 
 
+def _add_decision_options(p: argparse.ArgumentParser) -> None:
+    """The destination control the answer is stated for and the service criterion."""
+    from .options import destination_control_type, number
+    p.add_argument("--destination-control", metavar="NAME", type=destination_control_type,
+                   help="the destination control the decision is stated for: an immediate "
+                        "policy or a batch rule (default: least-added-time, declared in "
+                        "docs/rules.md)")
+    p.add_argument("--wait-max", metavar="S", default=30.0,
+                   type=number(0.0, True, "S must be a time > 0 and at most 600 [s]", high=600.0),
+                   help="service criterion: the largest average waiting time [s] (default 30, "
+                        "common office practice)")
+    p.add_argument("--wait-p95-max", metavar="S", default=90.0,
+                   type=number(0.0, True, "S must be a time > 0 and at most 1200 [s]",
+                               high=1200.0),
+                   help="service criterion: the largest 95th-percentile waiting time [s] "
+                        "(default 90, common office practice)")
+
+
 def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentParser:
     """The parser; ``default_rule_names`` (from the registry) only for the help text."""
     from .options import cars_open_type, hc_type, interval_type, passengers_type
@@ -250,6 +268,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     rep.add_argument("--out", metavar="DIR", required=True, help="output folder")
     rep.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(rep)
+    _add_decision_options(rep)
     _add_json(rep)
     rep.set_defaults(handler="experiments.cli.report")
 
@@ -261,6 +280,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                       help="where the report and charts go (default: liftsort-demo)")
     demo.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(demo)
+    _add_decision_options(demo)
     demo.set_defaults(handler="experiments.cli.demo", file=None)
     for command in sub.choices.values():
         _add_debug(command)

@@ -9,8 +9,7 @@ from experiments.outputs import output_set
 from experiments.wording import CAUTION
 
 from .calc import print_classical
-from .report import check_job_trials, published
-from .tables import grid_table
+from .report import check_job_trials, job_options, print_answer, published
 
 
 def run(args, scenario=None) -> int:
@@ -22,30 +21,22 @@ def run(args, scenario=None) -> int:
     scenario = load_scenario(path)
     check_job_trials(args.trials, scenario)
     with output_set(args.out, command="demo") as outs:
-        print_classical(classical_result(scenario, None, True),
-                        f"{scenario.building.name} (invented demo building): classical "
-                        f"up-peak calculation (demand mode, Poisson passenger counts)")
         result = published(run_job(scenario, path, outs.folder, seed=args.seed,
                                    ci_target_pct=args.ci_target, trials=args.trials,
                                    max_trials=args.max_trials, quiet=args.quiet,
-                                   threads=args.threads, stages=stages), outs)
+                                   threads=args.threads, stages=stages, **job_options(args)),
+                           outs)
+    print(f"{scenario.building.name} (invented demo building): is destination control worth "
+          f"specifying?")
+    print_answer(result)
+    print()
+    print_classical(classical_result(scenario, None, True),
+                    "Method check, conventional control: classical up-peak calculation "
+                    "(demand mode, Poisson passenger counts)")
     m = result["monte_carlo"]
-    print(f"\nMonte Carlo, conventional control at the demand: round-trip time "
-          f"{m['round_trip_time_s']:.1f} s ± {m['ci95_s']:.1f} s, interval {m['interval_s']:.1f} s"
-          f"{' (saturated: at design load)' if m['saturated'] else ''}.")
-    rows = [[x["rule"], x["round_trip_time_s"], x["ci95_s"], x["interval_s"], x["expected_stops"],
-             x["hc_gain_pct_vs_random"], x["hc_gain_ci95_pct"], x["design_hc"]]
-            for x in result["rules"]]
-    print("\nAllocation rules on the same passengers (Poisson counts, every car open to "
-          "allocation):")
-    print(grid_table(["rule", "RTT [s]", "+/-", "INT [s]", "stops", "HC gain [%]", "+/-",
-                      "HC at design load [%/5min]"], rows))
-    print(f"\nSizing (interval at the demand, handling capacity at design load; destination "
-          f"rules with "
-          f"{result['sizing']['cars_open']} cars open to allocation):")
-    for s in result["sizing"]["savings"]:
-        print("- " + s["saving"])
-    print("\n" + result["headline"])
+    print(f"\nMonte Carlo round trips, conventional control at the demand: round-trip time "
+          f"{m['round_trip_time_s']:.1f} s (95 % interval ± {m['ci95_s']:.1f} s), interval "
+          f"{m['interval_s']:.1f} s{' (saturated: at design load)' if m['saturated'] else ''}.")
     print(f"\nreport: {result['report']}")
     print("\n" + CAUTION)
     return 0

@@ -72,6 +72,21 @@ hc_type = number(0.0, True, "PCT must be a handling capacity > 0 and at most 100
                             "[% of the population per 5 min]", high=100.0)
 
 
+def destination_control_type(text: str) -> str:
+    """An argparse type: a destination control of the peak simulation (a batch rule for
+    delayed allocation or an immediate policy; not conventional control)."""
+    from allocation.registry import POLICIES, RULES
+    import difflib
+    name = text.strip()
+    choices = [n for n in (*RULES, *POLICIES) if n not in ("random", "best", "round-robin")]
+    if name not in choices:
+        near = difflib.get_close_matches(name, choices, n=1, cutoff=0.5)
+        hint = f"; did you mean '{near[0]}'?" if near else ""
+        raise argparse.ArgumentTypeError(
+            f"{_shown(text)} is not a destination control{hint} (choices: {', '.join(choices)})")
+    return name
+
+
 def parse_rules(text: str | None) -> list[str]:
     """Rule names from a comma list, each checked against the registry (None: the
     registry's default rules)."""

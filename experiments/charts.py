@@ -32,6 +32,10 @@ from .outputs import output_dir, write_atomic
 from .wording import count_of
 
 DPI = 150
+#: The widest chart [in]: 1650 px at DPI, so that in the report's 66 rem (1056 px) column
+#: a 10 pt label is still about 13 px high. A chart with more to show gets narrower bars,
+#: never a wider canvas.
+MAX_WIDTH_IN = 11.0
 
 def _is_baseline(rule: str) -> bool:
     """True for the registry's conventional baseline rule."""
@@ -105,7 +109,7 @@ def _style():
 def _figure(nrows: int, ncols: int, width_in: float, height_in: float, **subplots):
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
-    fig = Figure(figsize=(width_in, height_in), layout="constrained")
+    fig = Figure(figsize=(min(width_in, MAX_WIDTH_IN), height_in), layout="constrained")
     FigureCanvasAgg(fig)
     axes = fig.subplots(nrows, ncols, squeeze=False, **subplots)
     return fig, axes
@@ -482,7 +486,8 @@ def _distribution(results, column: int, xlabel: str, title: str, out_dir, stem) 
             ax.bar(ks - 0.4 + width * (i + 0.5), prob, width=width, color=rule_colour(rule),
                    edgecolor="white", linewidth=0.4, label=f"{rule} (mean {mean:.2f})",
                    hatch="//" if _is_baseline(rule) else None)
-        ax.set_xticks(ks)
+        step = max(1, int(np.ceil((top + 1) / 24)))      # at most 24 labels on the axis
+        ax.set_xticks(ks[::step])
         ax.set_xlim(-0.6, top + 0.6)
         ax.set_xlabel(xlabel)
         ax.set_ylabel("probability per car trip [-]")

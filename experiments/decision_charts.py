@@ -71,8 +71,8 @@ def waiting_distribution_chart(study, out_dir, building_name: str, limits_s=(30.
             top = max(top, float(np.percentile(waits, 99)))
         for limit in limits_s:
             ax.axvline(limit, color="#999999", linewidth=0.9, linestyle=":")
-            ax.text(limit, 101, f"{limit:g} s", ha="center", va="bottom", fontsize="small",
-                    color="#555555")
+            ax.text(limit, 98, f" {limit:g} s", ha="left", va="top", rotation=90,
+                    fontsize="small", color="#555555")
         ax.set_xlim(0, max(top, max(limits_s) * 1.2))
         ax.set_ylim(0, 100)
         ax.set_xlabel("waiting time t [s]")
@@ -148,7 +148,7 @@ def service_vs_demand_chart(capacities, out_dir, building_name: str, criterion,
 
 
 def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: str,
-                  control: str) -> list[Path]:
+                  control: str, base_outcome: str | None = None) -> list[Path]:
     """Destination control's gain in handling capacity at the criterion, with each input
     moved down and up by its step: one bar per input, widest first.
 
@@ -159,6 +159,11 @@ def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: st
         grey band around the inputs-as-given line, apart from the bars.
     base_gain_pct : float or None
         The gain with every input as in the file [% of population per 5 min, points].
+    base_outcome : str, optional
+        The answer with every input as in the file (:func:`experiments.decision.outcome`):
+        an input with a step that gives another answer is marked "changes the answer",
+        whether or not it moves the gain (the demand moves the answer, not the
+        capacities).
 
     Returns
     -------
@@ -177,7 +182,7 @@ def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: st
     for name, pair in by_input.items():
         vals = [s.hc_gain_pct_5min for s in pair if s.hc_gain_pct_5min is not None]
         if not vals:
-            continue
+            vals = [base]
         lo, hi = min(vals), max(vals)
         label = f"{name} ({', '.join(s.step for s in pair)})"
         rows.append((label, lo, hi, pair))
@@ -196,6 +201,14 @@ def tornado_chart(steps, base_gain_pct: float | None, out_dir, building_name: st
             ax.axvspan(base - max(noise), base + max(noise), color="#d9d9d9", alpha=0.6,
                        zorder=0, linewidth=0)
         ax.axvline(base, color="black", linewidth=1.2)
+        if base_outcome is not None:
+            for y, (_, _, _, pair) in enumerate(rows):
+                moved = [s.step for s in pair if s.outcome != base_outcome]
+                if moved:
+                    ax.annotate(f"changes the answer ({', '.join(moved)})", (1.0, y),
+                                xycoords=("axes fraction", "data"), xytext=(-4, 0),
+                                textcoords="offset points", ha="right", va="center",
+                                fontsize="small", color="#b30000")
         ax.axvline(0.0, color=_BASE, linewidth=0.9, linestyle="--")
         ax.set_yticks(range(len(rows)))
         ax.set_yticklabels([r[0] for r in rows])

@@ -187,7 +187,7 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
         paths += dch.service_vs_demand_chart(list(decision.capacities), out_dir, name, criterion,
                                              demand)
         paths += dch.tornado_chart(list(decision.sensitivity), decision.gain_pct_5min, out_dir,
-                                   name, dc)
+                                   name, dc, decision.outcome)
     paths += charts.sweep_charts(sweep, out_dir, name)
     paths += later.result()
     captions = _captions(dc)

@@ -1,8 +1,18 @@
-"""Sizing: the smallest lift group that meets the criteria under each rule.
+"""Sizing: the cheapest lift group that meets the criteria under each control.
 
-Candidates are tried in the order a client pays for them: fewest cars first,
-then the smallest car (rated load), then the slowest rated speed; acceleration,
-jerk, door and transfer times stay as in the input file. Each candidate is run
+Two searches share the candidates and their order, the order a client pays for
+them: fewest cars first, then the smaller installation (rated load x rated
+speed, or rated load + w x rated speed for a cost weight w), then the smaller
+car; acceleration and jerk stay as in the input file, door and transfer times
+too unless the file sets ``times_scale_with_car_size`` (:func:`candidate_group`).
+
+:func:`size_by_service` is the answer: the peak simulation of each candidate
+under conventional control and the destination control, a design passing only
+when the upper end of every 95 % interval meets the service criterion
+(:mod:`experiments.decision`). :func:`size_group` is the round-trip screen
+below, a bound for the destination rules.
+
+The round-trip screen. Each candidate is run
 twice, every rule on the same passengers: at its design load (the load at
 which the busiest stretch of the trip carries capacity factor x rated load)
 and at the load the criterion demand sets (the Monte Carlo fixed point on
@@ -57,9 +67,10 @@ def default_criteria(scenario: Scenario, interval_max_s=None, hc_min_pct=None) -
     return Criteria(DEFAULT_INTERVAL_MAX_S if interval_max_s is None else interval_max_s, hc)
 
 
-def candidates(cars_list, loads, speeds):
-    """(cars, rated load, rated speed) in the order smallest first."""
-    return [(c, q, v) for c in sorted(cars_list) for q in sorted(loads) for v in sorted(speeds)]
+def candidates(cars_list, loads, speeds, cost_weight: float | None = None):
+    """(cars, rated load, rated speed) in the order a client pays for them (see
+    :func:`installation_order`)."""
+    return installation_order(cars_list, loads, speeds, cost_weight)
 
 
 def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, speeds, *,

@@ -133,7 +133,8 @@ def brute_force_designs(scenario, rules, cars, loads, speeds, interval_max_s, hc
     designs = {}
     for rule in rules:
         passing = [key[1:] for key, (ok, *_) in meets.items() if key[0] == rule and ok]
-        designs[rule] = min(passing) if passing else None       # (cars, load, speed) order
+        designs[rule] = (min(passing, key=lambda x: (x[0], x[1] * x[2], x[1], x[2]))
+                         if passing else None)     # cars, then load x speed, then load
     return designs, meets
 
 

@@ -22,7 +22,18 @@ from experiments.report import write_report
 
 from .report_context import HOSTILE_NAME, tiny_context
 
-CHROMIUM = Path(os.environ.get("LIFTSORT_CHROMIUM", "/usr/bin/chromium"))
+def _find_chromium() -> Path:
+    """``LIFTSORT_CHROMIUM`` if set, else ``chromium`` or ``chromium-browser`` on the PATH,
+    else Debian's /usr/bin/chromium."""
+    import shutil
+    given = os.environ.get("LIFTSORT_CHROMIUM")
+    if given:
+        return Path(given)
+    found = shutil.which("chromium") or shutil.which("chromium-browser")
+    return Path(found) if found else Path("/usr/bin/chromium")
+
+
+CHROMIUM = _find_chromium()
 CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                  "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 
@@ -36,7 +47,8 @@ def _unavailable(reason: str):
 @pytest.fixture(scope="module")
 def browser():
     if not CHROMIUM.is_file():
-        _unavailable(f"Chromium not found at {CHROMIUM}")
+        _unavailable(f"Chromium not found at {CHROMIUM} (install it, e.g. `apt-get install "
+                     f"chromium`, or set LIFTSORT_CHROMIUM to its path)")
     try:
         from playwright.sync_api import sync_playwright
     except ImportError:

@@ -98,7 +98,8 @@ def _add_decision_options(p: argparse.ArgumentParser) -> None:
 
 def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentParser:
     """The parser; ``default_rule_names`` (from the registry) only for the help text."""
-    from .options import cars_open_type, hc_type, interval_type, passengers_type
+    from .options import (cars_open_type, hc_type, interval_type, number, passengers_type,
+                          whole)
     rules_help = _rules_help(default_rule_names)
     parser = argparse.ArgumentParser(
         prog="liftsort",
@@ -190,13 +191,18 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     sw.set_defaults(handler="experiments.cli.sweep")
 
     sz = sub.add_parser(
-        "size", help="smallest group meeting interval and handling-capacity criteria, per rule",
-        description="Search lift groups, fewest cars first, then smallest car, then slowest "
-                    "speed, for the smallest one whose interval at the demand and 5-minute "
-                    "handling capacity at design load meet the criteria under each rule, and "
-                    "say what destination control saves. Default criteria: interval <= 30 s "
-                    "and handling capacity >= the file's demand (or 12 %), common office "
-                    "practice (CIBSE Guide D).")
+        "size", help="cheapest group meeting the service criterion under each control",
+        description="Search lift groups in the order a client pays for them (fewest cars, "
+                    "then the smaller installation: rated load x rated speed, or with "
+                    "--cost-weight W, rated load + W x speed) for the first one that meets the "
+                    "service criterion in the peak simulation (simulated in time; average and "
+                    "95th-percentile waiting time, and for destination control a time to "
+                    "destination no worse than conventional control's), under conventional "
+                    "control and the destination control; a design passes only if the upper "
+                    "end of each 95 % interval meets its limit. Then, as a bound, the "
+                    "round-trip screen: interval <= 30 s at the demand and handling capacity "
+                    ">= the demand (or 12 %) at design load, per rule (common office practice, "
+                    "CIBSE Guide D). Up-peak traffic for the peak sizing.")
     _add_file(sz)
     sz.add_argument("--interval-max", metavar="S", type=interval_type,
                     help="largest acceptable interval at the load the demand (--hc-min) sets "
@@ -217,7 +223,19 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     sz.add_argument("--rules", metavar="LIST", help=rules_help)
     sz.add_argument("--fixed", action="store_true", help="fixed passenger counts (default Poisson)")
     sz.add_argument("--quiet", action="store_true", help="no progress bar")
+    sz.add_argument("--cost-weight", metavar="W",
+                    type=number(0.0, False, "W must be a weight >= 0 and at most 1000 "
+                                "[persons per m/s]", high=1000.0),
+                    help="order installations by rated load + W x rated speed instead of "
+                         "rated load x rated speed")
+    sz.add_argument("--replications", metavar="R", default=10,
+                    type=whole(2, "R must be a whole number of replications from 2 to 200",
+                               high=200),
+                    help="peak-simulation replications per candidate and control (default 10)")
+    sz.add_argument("--round-trip-only", action="store_true",
+                    help="skip the peak sizing: the round-trip screen only (a bound)")
     _add_run_options(sz)
+    _add_decision_options(sz)
     _add_json(sz)
     sz.set_defaults(handler="experiments.cli.size")
 

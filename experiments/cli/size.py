@@ -1,11 +1,12 @@
-"""`liftsort size`: the smallest group meeting the criteria under each rule."""
+"""`liftsort size`: the cheapest group meeting the service criterion under each control
+(peak simulation), and the round-trip screen per rule beside it, as a bound."""
 from __future__ import annotations
 
 from roundtrip.building import Scenario
 
 from experiments.progress import progress_bar
 from experiments.sizing import default_criteria, size_group
-from experiments.wording import CAUTION
+from experiments.wording import CAUTION, client_name
 
 from .options import (CARS, LOADS, SPEEDS, check_rules_fit, check_runs, check_trials,
                       parse_range, parse_rules)
@@ -30,17 +31,85 @@ def sizing_plan(scenario: Scenario, args) -> dict:
     return dict(cars=cars, loads=loads, speeds=speeds, rules=rules)
 
 
+def service_sizing(scenario: Scenario, args, plan: dict) -> dict | None:
+    """The peak sizing (None with --round-trip-only; a note when the traffic is not
+    up-peak, which the peak simulation does not model)."""
+    from allocation.registry import headline_control
+    from roundtrip.building import Traffic
+    from roundtrip.classical import is_uppeak
+
+    from experiments.decision import ServiceCriterion
+    from experiments.sizing import size_by_service
+    if args.round_trip_only:
+        return None
+    traffic = scenario.traffic or Traffic(args.hc_min or 12.0)
+    if args.hc_min is not None:
+        from dataclasses import replace as _replace
+        traffic = _replace(traffic, arrival_rate_pct_5min=args.hc_min, profile_pct_5min=None)
+    if not is_uppeak(traffic):
+        return {"skipped": "the peak simulation models up-peak traffic only; this file's "
+                           "traffic is a mix, so only the round-trip screen (a bound) is given"}
+    dc = args.destination_control or headline_control()
+    criterion = ServiceCriterion(args.wait_max, args.wait_p95_max)
+    total = len(plan["cars"]) * len(plan["loads"]) * len(plan["speeds"])
+    with progress_bar(total, args.quiet or args.json, "sizing, peak simulation",
+                      unit="group") as bar:
+        from dataclasses import replace
+        return size_by_service(replace(scenario, traffic=traffic), dc, criterion, plan["cars"],
+                               plan["loads"], plan["speeds"], seed=args.seed,
+                               replications=args.replications, cost_weight=args.cost_weight,
+                               on_candidate=bar.update)
+
+
 def sizing(scenario: Scenario, args) -> dict:
     plan = sizing_plan(scenario, args)
     criteria = default_criteria(scenario, args.interval_max, args.hc_min)
+    service = service_sizing(scenario, args, plan)
     total = len(plan["cars"]) * len(plan["loads"]) * len(plan["speeds"])
-    with progress_bar(total, args.quiet or args.json, "sizing") as bar:
+    with progress_bar(total, args.quiet or args.json, "sizing, round-trip screen") as bar:
         result = size_group(scenario, plan["rules"], criteria, plan["cars"], plan["loads"],
                             plan["speeds"], cars_open=args.cars_open, poisson=not args.fixed,
                             trials=args.trials, ci_target_pct=args.ci_target,
                             max_trials=args.max_trials, seed=args.seed, threads=args.threads,
                             on_candidate=bar.update)
-    return {"building": scenario.building.name, **result}
+    out = {"building": scenario.building.name, **result}
+    if service is not None:
+        out["service"] = {k: v for k, v in service.items() if k != "tried"}
+        out["service_tried"] = service.get("tried", [])
+    return out
+
+
+def _print_service(s: dict) -> None:
+    if "skipped" in s:
+        print(f"Peak sizing: skipped - {s['skipped']}.")
+        return
+    c = s["criterion"]
+    print(f"Cheapest group meeting the service criterion at {s['demand_pct_5min']:g} % / 5 min "
+          f"(simulated in time; average wait <= {c['average_wait_max_s']:g} s, 95th-percentile "
+          f"wait <= {c['wait_p95_max_s']:g} s, destination control's time to destination no "
+          f"worse than conventional's; upper ends of the 95 % intervals; order: "
+          f"{s['cost_order']}):")
+    rows = []
+    for x in s["designs"]:
+        if x["found"]:
+            rows.append([client_name(x["control"], with_key=False), x["cars"],
+                         x["rated_load_persons"], x["rated_speed_mps"],
+                         x["average_waiting_time_s"], x["waiting_time_p95_s"],
+                         x["average_time_to_destination_s"], x["handling_capacity_pct_5min"]])
+        else:
+            rows.append([client_name(x["control"], with_key=False), "none", "", "", "", "", "",
+                         ""])
+    print(grid_table(["control", "cars", "load [persons]", "speed [m/s]", "wait [s]",
+                      "wait p95 [s]", "to destination [s]", "HC [%/5min]"], rows, digits=1))
+    saving = s.get("savings")
+    if saving and saving["cars_saved"] > 0:
+        print(f"- destination control saves {saving['cars_saved']} car(s) (simulated in time)")
+    elif saving:
+        print(f"- destination control saves no car here (simulated in time; "
+              f"{saving['cars_saved']:+d} cars)")
+    for x in s["designs"]:
+        if not x["found"]:
+            print(f"- {client_name(x['control'], with_key=False)}: {x['message']}")
 
 
 def run(args, scenario: Scenario) -> int:
@@ -48,18 +117,23 @@ def run(args, scenario: Scenario) -> int:
     if args.json:
         out = dict(d)
         out.pop("tried")
+        out.pop("service_tried", None)
         print(dumps(out))
         return 0
+    if "service" in d:
+        _print_service(d["service"])
+        print()
     c = d["criteria"]
-    print(f"{d['building']}: smallest group with interval <= {c['interval_max_s']:g} s at the "
+    print(f"{d['building']}: round-trip screen (a bound for destination rules, not an answer): "
+          f"smallest group with interval <= {c['interval_max_s']:g} s at the "
           f"demand and handling capacity >= {c['hc_min_pct']:g} % / 5 min at design load "
           f"({d['passenger_model']} passenger counts; destination rules with "
           f"{d['cars_open']} car(s) open to allocation"
           f"{' (the default, realisable)' if args.cars_open is None else ''})")
-    rows = [[x["rule"], x["cars"] if x["found"] else "none", x["cars_open"],
-             x["rated_load_persons"], x["rated_speed_mps"], x["interval_s"],
+    rows = [[x["rule"], x.get("basis", "conventional"), x["cars"] if x["found"] else "none",
+             x["cars_open"], x["rated_load_persons"], x["rated_speed_mps"], x["interval_s"],
              x["handling_capacity_pct_5min"], x["round_trip_time_s"]] for x in d["designs"]]
-    print(grid_table(["rule", "cars", "cars open", "load [persons]", "speed [m/s]",
+    print(grid_table(["rule", "basis", "cars", "cars open", "load [persons]", "speed [m/s]",
                       "INT at demand [s]", "HC at design load [%/5min]", "RTT at design [s]"],
                      rows))
     for s in d["savings"]:

@@ -126,14 +126,15 @@ def _with_demand(scenario: Scenario, pct: float) -> Traffic:
 
 
 def _evaluate(scenario: Scenario, controls, pct, criterion, *, seed, replications, window_s,
-              minutes, cache):
+              minutes, cache, cars_open=None):
     """{control: (meets, reasons)} at demand ``pct`` (memoised in ``cache``)."""
     key = round(pct, 6)
     if key not in cache:
         from peak.simulation import simulate_peak
         study = simulate_peak(scenario.building, scenario.group, _with_demand(scenario, pct),
                               controls, window_s=window_s, minutes=minutes,
-                              replications=replications, seed=seed, slots=False)
+                              replications=replications, seed=seed, slots=False,
+                              cars_open=cars_open)
         base = study.runs[0]
         cache[key] = {r.control.name: (*meets(r, base, criterion), _figures(r)) for r in study.runs}
     return cache[key]
@@ -156,6 +157,7 @@ def capacity_at_criterion(scenario: Scenario, controls, criterion: ServiceCriter
                           window_s: float = 5.0, minutes: float = 60.0, low_pct: float = 1.0,
                           high_pct: float | None = None, grid_step_pct: float = GRID_STEP_PCT,
                           tolerance_pct: float = CAPACITY_TOLERANCE_PCT,
+                          cars_open: int | None = None,
                           on_step=None) -> list[CapacityAtCriterion]:
     """Each control's handling capacity at the criterion [% of population / 5 min].
 
@@ -164,7 +166,8 @@ def capacity_at_criterion(scenario: Scenario, controls, criterion: ServiceCriter
     demands and at least one has passed somewhere; the
     highest passing demand of each control is then refined by bisection against the next
     demand of the grid to ``tolerance_pct``. Every evaluation runs all controls on the same
-    arrivals (the same seed at every demand).
+    arrivals (the same seed at every demand). ``cars_open`` caps the cars offered to one
+    allocation (default: every car; see :func:`peak.simulation.simulate_peak`).
     """
     from peak.simulation import resolve_controls
     names = [c.name for c in resolve_controls(controls)]
@@ -172,7 +175,7 @@ def capacity_at_criterion(scenario: Scenario, controls, criterion: ServiceCriter
     high = 2.5 * demand if high_pct is None else high_pct
     cache: dict = {}
     run = dict(seed=seed, replications=replications, window_s=window_s, minutes=minutes,
-               cache=cache)
+               cache=cache, cars_open=cars_open)
     grid = list(np.arange(low_pct, high + 1e-9, grid_step_pct))
     passing = {n: [] for n in names}
     failing_run = {n: 0 for n in names}         # failed at this many demands in a row
@@ -298,21 +301,24 @@ def _moved(scenario: Scenario, name: str, sign: int):
 
 #: The inputs moved, each down and up: transfer and door times by 20 %, the departure load
 #: by one person, the demand by 2 % of the population per 5 min, the allocation window
-#: (delayed allocation only) and the lobby dwell by 50 %.
+#: (delayed allocation only) and the lobby dwell by 50 %; and the cars open to one
+#: allocation, from every car down to one car fewer and to the realisable two (the car
+#: loading and the next; docs/rules.md) - there is no step up from every car.
 SENSITIVITY_INPUTS = ("transfer times", "door times", "departure load", "demand",
-                      "allocation window", "lobby dwell")
+                      "allocation window", "lobby dwell", "cars open")
 
 
 def _step(scenario, control, criterion, *, name, label, seed, replications, window_s, minutes,
-          low, tol, on_step, monte_carlo=False) -> SensitivityStep:
+          low, tol, on_step, monte_carlo=False, cars_open=None) -> SensitivityStep:
     from peak.simulation import simulate_peak
     caps = capacity_at_criterion(scenario, [control], criterion, seed=seed,
                                  replications=replications, window_s=window_s, minutes=minutes,
-                                 low_pct=low, tolerance_pct=tol, on_step=on_step)
+                                 low_pct=low, tolerance_pct=tol, on_step=on_step,
+                                 cars_open=cars_open)
     hc = {c.control: c.handling_capacity_pct_5min for c in caps}
     study = simulate_peak(scenario.building, scenario.group, scenario.traffic, [control],
                           window_s=window_s, minutes=minutes, replications=replications,
-                          seed=seed, slots=False)
+                          seed=seed, slots=False, cars_open=cars_open)
     diff, ci = paired_ttd_difference(study.run(control), study.runs[0])
     return SensitivityStep(name, label, hc.get("conventional"), hc.get(control),
                            scenario.traffic.arrival_rate_pct_5min, diff, ci, monte_carlo)
@@ -337,6 +343,15 @@ def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *
     for name in inputs:
         if name == "allocation window" and not delayed:
             continue                         # an immediate policy has no window
+        if name == "cars open":
+            cars = scenario.group.cars
+            for k in sorted({cars - 1, 2}, reverse=True):
+                if 2 <= k < cars:
+                    steps.append(_step(scenario, control, criterion, name=name,
+                                       label=f"{k - cars:+d} car{'s' if cars - k > 1 else ''} "
+                                             f"({k} of {cars} open)", seed=seed,
+                                       window_s=window_s, cars_open=k, **run))
+            continue
         for sign in (-1, 1):
             window = window_s
             if name == "allocation window":

@@ -139,7 +139,8 @@ def comparison_run(scenario: Scenario, rules, passengers: float | None, *, cars_
 
 def peak_study(scenario: Scenario, controls, *, window_s: float | None = None,
                minutes: float | None = None, warmup_minutes: float = 5.0,
-               replications: int | None = None, seed: int = 0, threads=None):
+               replications: int | None = None, seed: int = 0, threads=None,
+               cars_open: int | None = None):
     """The peak simulation of the file's building under each control (peak.simulation)."""
     from peak.simulation import DEFAULT_WINDOW_S, simulate_peak
     require_traffic(scenario)
@@ -147,6 +148,7 @@ def peak_study(scenario: Scenario, controls, *, window_s: float | None = None,
         return simulate_peak(scenario.building, scenario.group, scenario.traffic, controls,
                              window_s=DEFAULT_WINDOW_S if window_s is None else window_s,
                              minutes=minutes, warmup_minutes=warmup_minutes,
-                             replications=replications, seed=seed, threads=threads)
+                             replications=replications, seed=seed, threads=threads,
+                             cars_open=cars_open)
     except ValueError as exc:
         raise InputError([str(exc)], scenario.source) from None

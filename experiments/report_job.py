@@ -470,7 +470,10 @@ def _method(dc: str, criterion) -> list[str]:
         f"demand passing only if the upper end of every 95 % interval meets its limit; found "
         f"on a 1 % grid of demands and refined by bisection to 0.1 %.",
         "Sensitivity: the decision figures recomputed with each main input moved by a stated "
-        "step; the Monte Carlo error (the same inputs on another seed) is shown apart.",
+        "step (transfer and door times ±20 %, departure load ±1 person, demand ±2 points, "
+        "lobby dwell ±50 %, the allocation window ±50 % for a batch rule, and the cars open "
+        "to one allocation, from every car down to one fewer and to two); the Monte Carlo "
+        "error (the same inputs on another seed) is shown apart.",
         "Sizing: groups are tried in the order a client pays for them (fewest cars, then the "
         "smaller installation, rated load times rated speed); a control's design is the first "
         "group at which it meets the criterion in the peak simulation. A saving of cars is "

@@ -43,12 +43,15 @@ delayed allocation (a batch rule)
     the cars open to allocation: those at the lobby with their doors open, and
     those due to open within the next window, each with its remaining room.
     Those not placed wait for the next window (rounds repeat while anyone is
-    waiting for a car).
+    waiting for a car). At most ``cars_open`` cars are open to one round: the
+    earliest to open (ties by car).
 immediate allocation (a policy)
     Each passenger, as they register, is given a car by the policy from the
     view of every car's first trip with room: the open trip at the lobby, the
     car's next trip, or, when that is full, the trip after it (whose opening is
     then known, because a full trip's boarding and flight are determined).
+    With ``cars_open`` K below the cars, only the K of those trips that leave
+    the lobby soonest (ties by car) are offered: the others show no room.
 """
 from __future__ import annotations
 
@@ -102,6 +105,7 @@ class PeakSetup(NamedTuple):
     start_delay_s: float
     mode: int                  # CONVENTIONAL, DELAYED, IMMEDIATE
     window_s: float            # delayed allocation window
+    cars_open: int             # at most this many cars offered to one allocation
 
 
 class Arrivals(NamedTuple):
@@ -420,6 +424,17 @@ def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, pax, 
                         v["down_stops"] = np.uint64(0)
                         v["opens_in_s"] = row["next_open_s"] - t
                         v["leaves_in_s"] = (row["next_open_s"] - t) + setup.lobby_dwell_s
+                if setup.cars_open < L:       # only the K soonest-leaving are offered
+                    rank = cand                   # (free here: cand serves delayed rounds)
+                    for c in range(L):
+                        rank[c] = 0
+                        for d in range(L):
+                            if views[d]["leaves_in_s"] < views[c]["leaves_in_s"] or (
+                                    views[d]["leaves_in_s"] == views[c]["leaves_in_s"] and d < c):
+                                rank[c] += 1
+                    for c in range(L):
+                        if rank[c] >= setup.cars_open:
+                            views[c]["room"] = 0
                 c = policy(0, arrivals.destination[i], views, timing, policy_table)
                 if c < 0 or c >= L:
                     counters[ERROR] = ERROR_POLICY_NO_CAR
@@ -459,6 +474,7 @@ def _loop(arrivals, timing, setup, rule, rule_table, policy, policy_table, pax, 
                         pos -= 1
                     cand[pos] = tr
                     k += 1
+            k = min(k, setup.cars_open)       # the earliest to open, at most cars_open
             total_room = 0
             for j in range(k):
                 _view(views[j], trips[cand[j]], t, setup)

@@ -136,6 +136,7 @@ class PeakStudy:
     profile_pct_5min: tuple | None
     seed: int
     runs: tuple                        # ControlRun, conventional first
+    cars_open: int = 0                 # cars offered to one allocation (0: not recorded)
 
     def run(self, name: str) -> ControlRun:
         return next(r for r in self.runs if r.control.name == name)
@@ -160,6 +161,7 @@ class PeakStudy:
         return {"building": self.building, "cars": self.cars,
                 "departure_load_persons": self.departure_load_persons,
                 "lobby_dwell_s": self.lobby_dwell_s, "allocation_window_s": self.window_s,
+                "cars_open": self.cars_open,
                 "demand_pct_5min": self.demand_pct_5min,
                 "profile_pct_5min": list(self.profile_pct_5min) if self.profile_pct_5min else None,
                 "minutes": self.period.measured_s / 60.0,
@@ -180,10 +182,16 @@ def _tables(control: Control, building, group, cars: int):
             policy.compiled, policy.table(building, group, sizes, p))
 
 
-def peak_setup(group: LiftGroup, control: Control, window_s: float) -> P.PeakSetup:
+def peak_setup(group: LiftGroup, control: Control, window_s: float,
+               cars_open: int | None = None) -> P.PeakSetup:
+    """The loop's setup; ``cars_open`` (default: every car) caps the cars offered to one
+    allocation (see :mod:`peak._kernel`)."""
+    k = group.cars if cars_open is None else int(min(cars_open, group.cars))
+    if k < 1:
+        raise ValueError(f"cars_open = {cars_open!r}: must be a whole number >= 1")
     return P.PeakSetup(int(group.cars), int(group.departure_load_persons),
                        float(group.lobby_dwell_s), float(group.door_close_s),
-                       float(group.start_delay_s), int(control.mode), float(window_s))
+                       float(group.start_delay_s), int(control.mode), float(window_s), k)
 
 
 def _threads(threads: int | None) -> int:
@@ -194,7 +202,8 @@ def _threads(threads: int | None) -> int:
 
 
 def run_rows(building: Building, group: LiftGroup, control: Control, streams, *,
-             window_s: float = DEFAULT_WINDOW_S, threads: int | None = None):
+             window_s: float = DEFAULT_WINDOW_S, threads: int | None = None,
+             cars_open: int | None = None):
     """The rows of ``control`` on each replication's arrivals ``streams`` (a list of
     (times, destinations)): a list of (rows, trips) record arrays (:data:`peak._kernel.
     PASSENGER`, :data:`peak._kernel.TRIP`), one pair per replication. The one helper
@@ -202,7 +211,7 @@ def run_rows(building: Building, group: LiftGroup, control: Control, streams, *,
     contiguous ranges to a pool of threads (the compiled loop releases the GIL); each
     depends on its own arrivals only, so the rows are the same on any thread count."""
     timing = trip_timing(building, group)
-    setup = peak_setup(group, control, window_s)
+    setup = peak_setup(group, control, window_s, cars_open)
     rule, rule_table, policy, policy_table = _tables(control, building, group, group.cars)
     R = len(streams)
     sizes = [t.size for t, _ in streams]
@@ -275,7 +284,8 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
                   window_s: float = DEFAULT_WINDOW_S, minutes: float | None = None,
                   warmup_minutes: float = 5.0, replications: int | None = None, seed: int = 0,
                   ci_target_pct: float = CI_TARGET_PCT, max_replications: int = MAX_REPLICATIONS,
-                  threads: int | None = None, slots: bool = True) -> PeakStudy:
+                  threads: int | None = None, slots: bool = True,
+                  cars_open: int | None = None) -> PeakStudy:
     """The peak simulation of ``group`` in ``building`` under each control.
 
     Parameters
@@ -296,6 +306,10 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
         Seed of the ``SeedSequence`` whose children give the replications.
     slots : bool
         Also make the table per 5-minute slot (the charts need it; a search does not).
+    cars_open : int, optional
+        At most this many cars offered to one allocation (default: every car): an
+        immediate policy sees only the K cars that leave the lobby soonest, a delayed
+        round the K that open first. Conventional control does not depend on it.
     """
     from allocation.registry import peak_controls
     chosen = resolve_controls(peak_controls() if controls is None else controls)
@@ -309,7 +323,8 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
         streams = arrival_streams(building, traffic, period, seed, done, want - done)
         for control in chosen:
             for (t, _), (rows, trips) in zip(streams, run_rows(building, group, control, streams,
-                                                                 window_s=window_s, threads=threads)):
+                                                                 window_s=window_s, threads=threads,
+                                                                 cars_open=cars_open)):
                 figs[control.name].append(S.replication_figures(
                     t, rows, trips, period.measure_start_s, period.measure_end_s,
                     building.total_population, group.door_open_s))
@@ -332,7 +347,8 @@ def simulate_peak(building: Building, group: LiftGroup, traffic: Traffic, contro
                             S.summarise(figs[c.name])) for c in chosen)
     return PeakStudy(building.name, group.cars, group.departure_load_persons, group.lobby_dwell_s,
                      float(window_s), period, traffic.arrival_rate_pct_5min,
-                     traffic.profile_pct_5min, int(seed), runs)
+                     traffic.profile_pct_5min, int(seed), runs,
+                     group.cars if cars_open is None else int(min(cars_open, group.cars)))
 
 
 def warm_up(controls=None) -> None:

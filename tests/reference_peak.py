@@ -85,13 +85,14 @@ class ReferencePeak:
 
     def __init__(self, arrival_s, destinations, cars: int, times: Times, kind: str, *,
                  rule=None, rule_table=None, policy=None, policy_table=None, timing=None,
-                 window_s: float = 5.0):
+                 window_s: float = 5.0, cars_open: int | None = None):
         self.arrival_s = [float(x) for x in arrival_s]
         self.dest = [int(x) for x in destinations]
         self.L, self.times, self.kind = cars, times, kind
         self.rule, self.rule_table = rule, rule_table
         self.policy, self.policy_table, self.timing = policy, policy_table, timing
         self.window_s = window_s
+        self.cars_open = cars if cars_open is None else cars_open
         n = len(self.arrival_s)
         self.alloc = [math.nan] * n
         self.ready = [math.nan] * n
@@ -231,6 +232,10 @@ class ReferencePeak:
                         else:
                             rows.append((D, 0, 0, 0, (tr.next_open - t) + self.times.lobby_dwell_s,
                                          tr.next_open - t))
+                    if self.cars_open < self.L:      # the K soonest-leaving, ties by car
+                        soonest = sorted(range(self.L), key=lambda c: (rows[c][4], c))
+                        for c in soonest[self.cars_open:]:
+                            rows[c] = (0,) + tuple(rows[c][1:])
                     c = int(self.policy(0, self.dest[i], self._car_views(rows), self.timing,
                                         self.policy_table))
                     tr = self.tail[c]
@@ -280,6 +285,7 @@ class ReferencePeak:
                  if len(self.head[c].passengers) < D and (
                      self.head[c].state == "open" or self.head[c].open_s <= t + self.window_s)]
         cands.sort(key=lambda tr: (tr.open_s, tr.car))
+        cands = cands[:self.cars_open]
         room = [D - len(tr.passengers) for tr in cands]
         batch = pending[:min(len(pending), sum(room))]
         if not batch:

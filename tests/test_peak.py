@@ -37,7 +37,7 @@ GROUP = LiftGroup(cars=3, rated_load_persons=8, rated_speed_mps=1.6, acceleratio
 ALL_CONTROLS = control_names()
 
 
-def twin(building, group, control, arrivals, window_s):
+def twin(building, group, control, arrivals, window_s, cars_open=None):
     timing = trip_timing(building, group)
     times = Times(timing.flight_s.tolist(), group.door_open_s, group.door_close_s,
                   group.start_delay_s, group.transfer_in_s, group.transfer_out_s,
@@ -49,7 +49,7 @@ def twin(building, group, control, arrivals, window_s):
     elif control.kind == "immediate":
         kw = dict(policy=get_policy(control.name).function, policy_table=policy_table)
     return ReferencePeak(arrivals[0], arrivals[1], group.cars, times, control.kind,
-                         timing=timing, window_s=window_s, **kw).run()
+                         timing=timing, window_s=window_s, cars_open=cars_open, **kw).run()
 
 
 # ---------------------------------------------------------------- the loop == its twin
@@ -81,10 +81,24 @@ def test_event_loop_equals_the_plain_twin_exactly(case):
     (who is committed to which trip and when, ready, boarding and alighting moments, and
     every trip's load, doors-open, departure and return)."""
     building, group, traffic, seed, name, window = case
+    assert_equals_twin(building, group, traffic, seed, name, window)
+
+
+@settings(max_examples=40)
+@given(case=peak_cases(), cars_open=st.integers(1, 3))
+def test_cars_open_equals_the_plain_twin_exactly(case, cars_open):
+    """With at most K cars offered to an allocation (an immediate policy sees the K that
+    leave soonest, a delayed round the K that open first), the same rows as the twin."""
+    building, group, traffic, seed, name, window = case
+    assert_equals_twin(building, group, traffic, seed, name, window, cars_open)
+
+
+def assert_equals_twin(building, group, traffic, seed, name, window, cars_open=None):
     _, arr = arrivals_of(building, traffic, seed)
     control = resolve_controls([name])[-1]
-    (rows, trips), = run_rows(building, group, control, [arr], window_s=window)
-    ref = twin(building, group, control, arr, window)
+    (rows, trips), = run_rows(building, group, control, [arr], window_s=window,
+                              cars_open=cars_open)
+    ref = twin(building, group, control, arr, window, cars_open)
     for key, expect in (("alloc_s", ref.alloc), ("ready_s", ref.ready), ("board_s", ref.board),
                         ("alight_s", ref.alight)):
         np.testing.assert_array_equal(rows[key], np.array(expect, dtype=float), err_msg=key)
@@ -345,3 +359,18 @@ def test_a_profile_sets_the_demand_of_each_five_minutes():
         counts = [np.sum((t >= lo) & (t < lo + 300)) for t, _ in streams]
         expect = pct / 100 * U
         assert abs(np.mean(counts) - expect) < 4 * math.sqrt(expect / len(counts))
+
+
+@pytest.mark.parametrize("name", [p for p in ALL_CONTROLS
+                                  if resolve_controls([p])[-1].kind == "immediate"])
+def test_with_one_car_open_every_immediate_policy_is_conventional_control(name):
+    """A fact of the trade: with one car open to each allocation there is nothing to
+    choose, so destination control loads the cars as conventional control does. Offered
+    only the car that leaves the lobby soonest, every immediate policy gives the very
+    rows of conventional control (it meets the earliest-leaving car with room)."""
+    b, g = DEMO.building, replace(DEMO.group, cars=4)
+    _, arr = arrivals_of(b, Traffic(11.0), 3, minutes=20.0)
+    conv, = run_rows(b, g, resolve_controls(["conventional"])[-1], [arr])
+    one, = run_rows(b, g, resolve_controls([name])[-1], [arr], cars_open=1)
+    for key in ("car", "ready_s", "board_s", "alight_s"):      # (trip ids are bookkeeping)
+        np.testing.assert_array_equal(one[0][key], conv[0][key], err_msg=key)

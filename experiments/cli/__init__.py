@@ -270,6 +270,11 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                                high=1000),
                     help="exactly R replications (default: enough for a 5 %% interval on every "
                          "control's average wait, at most 200)")
+    pk.add_argument("--cars-open", metavar="K", type=cars_open_type,
+                    help="at most K cars offered to one allocation: an immediate policy sees "
+                         "the K cars that leave the lobby soonest, a delayed round the K that "
+                         "open first (default: every car; 1 makes every immediate policy "
+                         "conventional control)")
     pk.add_argument("--seed", metavar="S", type=seed_type, default=2026,
                     help="seed of the replications' random streams (default 2026)")
     pk.add_argument("--threads", metavar="T", type=threads_type,

@@ -47,9 +47,13 @@ def parse_controls(text: str | None):
 
 
 def run(args, scenario: Scenario) -> int:
+    if args.cars_open is not None and args.cars_open > scenario.group.cars:
+        raise InputError([f"--cars-open {args.cars_open}: at most the group's "
+                          f"{scenario.group.cars} cars can be open to an allocation."])
     study = peak_study(scenario, parse_controls(args.controls), window_s=args.window,
                        minutes=args.minutes, warmup_minutes=args.warmup_minutes,
-                       replications=args.replications, seed=args.seed, threads=args.threads)
+                       replications=args.replications, seed=args.seed, threads=args.threads,
+                       cars_open=args.cars_open)
     d = study.to_dict()
     if args.json:
         print(dumps(d))
@@ -61,7 +65,8 @@ def run(args, scenario: Scenario) -> int:
           f"{d['demand_pct_5min']:g} % of the population per 5 min{profile}")
     print(f"{d['cars']} cars leaving the lobby with {d['departure_load_persons']} persons or "
           f"{d['lobby_dwell_s']:g} s after their first boarding; allocation window "
-          f"{d['allocation_window_s']:g} s; {d['minutes']:g} min measured after a "
+          f"{d['allocation_window_s']:g} s; {d['cars_open']} of {d['cars']} cars open to an "
+          f"allocation; {d['minutes']:g} min measured after a "
           f"{d['warmup_minutes']:g} min warm-up; {reps} replications, seed {d['seed']}")
     print("Every figure is simulated in time (basis: peak), the mean over replications.\n")
     rows = [[label, unit] + [_cell(r[key], dec) for r in d["controls"]]

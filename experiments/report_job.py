@@ -208,9 +208,9 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
     context = {
         "title": f"{name}: is destination control worth specifying?",
         "building": name,
-        "job": (f"Is destination control ({client_name(dc)}) worth specifying for this "
-                f"building, against conventional control, at the design demand of "
-                f"{demand:g} % of the population in 5 minutes?"),
+        "job": (f"Is {client_name(dc)}, worth specifying for this building, against "
+                f"conventional control, at the design demand of {demand:g} % of the population "
+                f"in 5 minutes?"),
         "headline": answer["headline"],
         "answer_points": answer["points"],
         "headline_numbers": answer["numbers"],
@@ -293,7 +293,7 @@ def _answer(decision, service, bounds, at_demand, mc, demand, cars, dc, traffic)
     cap_c, cap_d = decision.capacity("conventional"), decision.capacity(dc)
     fmt = (lambda x: "none of the demands tried" if x is None else f"{x:.1f} %")
     points = [peak_line("Conventional control", c, conv_run),
-              peak_line(f"Destination control ({name})", d, dc_run),
+              peak_line(name[0].upper() + name[1:], d, dc_run),
               f"Handling capacity at the service criterion (simulated in time): conventional "
               f"control {fmt(cap_c)}, destination control {fmt(cap_d)}"
               + (f", a gain of {v['gain_pct_5min']:+.1f} points." if v["gain_pct_5min"] is not None

@@ -91,7 +91,99 @@ def fewest_stops_at_lobby(destinations, cars, scratch, car_out):
 
     With every origin at the lobby a passenger adds no stop to a car that already
     stops at their floor and one stop to any other, and a car already stopping there
-    rises no higher. The rule's order of preference, (new stops, load, rise, car
+    rises no higher. Cars that are due to stop nowhere yet (as in the round-trip
+    Monte Carlo), few enough, go to :func:`fewest_stops_from_empty`; any others to
+    :func:`fewest_stops_promised`.
+    """
+    if not fewest_stops_from_empty(destinations, cars, scratch, car_out):
+        fewest_stops_promised(destinations, cars, scratch, car_out)
+
+
+#: Most cars open for :func:`fewest_stops_from_empty` (one byte of a 64-bit word each).
+PACKED_CARS = 8
+
+
+@njit(cache=True, inline="always")
+def _byte(word, c):
+    """Byte c of the uint64 ``word``, as an int64."""
+    return np.int64((word >> np.uint64(8 * c)) & np.uint64(255))
+
+
+@njit(cache=True, inline="always")
+def _one_in_byte(c):
+    return np.uint64(1) << np.uint64(8 * c)
+
+
+@njit(cache=True, inline="always")
+def fewest_stops_from_empty(destinations, cars, scratch, car_out):
+    """`fewest-stops` at the lobby for at most :data:`PACKED_CARS` cars due to stop
+    nowhere yet, each with load + room below 256; returns False, having written
+    nothing, for any other cars.
+
+    Each floor then has at most one car with room that stops there, its *owner*
+    (``scratch[f]``, -1 for none): a passenger for an owned floor takes its owner
+    (no other car can beat a car that adds no stop), and only a passenger for a
+    floor nobody owns weighs the cars, on (load, rise, car number) since every car
+    adds one stop, and the car chosen owns the floor from then on. When a car is
+    full its floors have no owner. The cars' loads, rooms left and highest floors
+    are kept one byte per car in three 64-bit words, so the loop over passengers
+    reads no car state from memory.
+    """
+    n = destinations.shape[0]
+    k = cars.shape[0]
+    if k > PACKED_CARS:
+        return False
+    loads = np.uint64(0)                      # byte c: car c's load
+    left = np.uint64(0)                       # byte c: its room left
+    tops = np.uint64(0)                       # byte c: the highest floor it stops at
+    open_cars = 0                             # bit c: car c has room left
+    for c in range(k):
+        if cars[c]["up_stops"] != 0 or cars[c]["down_stops"] != 0 or not (
+                0 <= cars[c]["load"] and 0 <= cars[c]["room"]
+                and cars[c]["load"] + cars[c]["room"] < 256):
+            return False
+        loads |= np.uint64(cars[c]["load"]) << np.uint64(8 * c)
+        left |= np.uint64(cars[c]["room"]) << np.uint64(8 * c)
+        if cars[c]["room"] > 0:
+            open_cars |= 1 << c
+    OWNER, FLOORS = 0, 65                     # owner of floor f; floors car c stops at
+    for f in range(65):
+        scratch[OWNER + f] = -1
+    for c in range(k):
+        scratch[FLOORS + c] = 0
+    never = np.int64(1) << 62
+    for i in range(n):
+        d = destinations[i]
+        car = scratch[OWNER + d]
+        if car < 0:                           # nobody owns d: weigh the cars with room
+            key = never
+            for c in range(PACKED_CARS):          # a fixed count: unrolled, no loop branch
+                kc = (_byte(loads, c) << 12) | (max(0, d - _byte(tops, c)) << 6) | c
+                key = min(key, kc if (open_cars >> c) & 1 else never)
+            if key == never:
+                car_out[i] = -1
+                continue
+            car = key & 63
+            tops += np.uint64(max(0, d - _byte(tops, car))) << np.uint64(8 * car)
+            scratch[OWNER + d] = car
+            scratch[FLOORS + car] |= np.int64(1) << d
+        car_out[i] = car
+        loads += _one_in_byte(car)
+        left -= _one_in_byte(car)
+        if _byte(left, car) == 0:             # full: its floors have no owner
+            open_cars &= ~(1 << car)
+            floors = scratch[FLOORS + car]
+            for f in range(_byte(tops, car) + 1):
+                scratch[OWNER + f] = -1 if (floors >> f) & 1 else scratch[OWNER + f]
+    return True
+
+
+@njit(cache=True, inline="always")
+def fewest_stops_promised(destinations, cars, scratch, car_out):
+    """`fewest-stops` at the lobby for any cars (at most 62), stops already promised
+    included.
+
+    The rule's order of preference, (new stops, load, rise, car
     number), is then one integer per car, and each passenger takes the car of the
     least (the cars weighed without a branch). Most passengers go to a floor that
     exactly one car with room already serves, and no other car can beat it (it adds

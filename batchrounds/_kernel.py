@@ -48,7 +48,8 @@ from numba import njit
 
 from allocation.contract import (CAR_VIEW, LEFT_BEHIND, N_COUNTS, OFFERED,
                                  RULE_SCRATCH_FIXED, RuleBatches)
-from roundtrip.schedule import car_trip, draw_cell, lobby_trip_of_mask, new_scratch
+from roundtrip.schedule import (car_trip, destination_table, draw_cell, draw_destination,
+                                lobby_trip_of_mask, new_scratch)
 
 
 class GroupLayout(NamedTuple):
@@ -81,8 +82,9 @@ TRIALS_PER_RULE_CALL = 64
 
 
 @njit(cache=True, nogil=True)
-def _uppeak_chain(rule, stream, ch, first, last, alias, layout, timing, table, out):
-    """Rounds first .. last - 1, every passenger boarding at the lobby."""
+def _uppeak_chain(rule, stream, ch, first, last, columns, layout, timing, table, out):
+    """Rounds first .. last - 1, every passenger boarding at the lobby (``columns``: the
+    alias table as :func:`roundtrip.schedule.destination_table` gives it)."""
     L = layout.n_cars
     kk = layout.cars_open
     rated = timing.rated_load
@@ -107,9 +109,10 @@ def _uppeak_chain(rule, stream, ch, first, last, alias, layout, timing, table, o
     aboard = 0
     for t0 in range(first, last, C):
         t1 = min(last, t0 + C)
-        # conventional loading, car by car: each car's room, and the batches
+        # conventional loading, car by car: each car's room, and the batches (the queue is
+        # first in, first out: the batches of these rounds are the next passengers in turn)
+        start = head
         j = 0
-        p = 0
         for t in range(t0, t1):
             for c0 in range(0, L, kk):
                 k = min(L, c0 + kk) - c0
@@ -120,34 +123,26 @@ def _uppeak_chain(rule, stream, ch, first, last, alias, layout, timing, table, o
                     views[j * kk + c]["room"] = b
                     waiting_at[(t - t0) * L + c0 + c] = waiting
                     total += b
-                b_off[j] = p
-                for i in range(head, head + total):
-                    b_dest[p] = alias.cell_dest[draw_cell(uniforms[i], alias)]
-                    p += 1
+                b_off[j] = head - start
                 head += total
                 car_start[j] = j * kk
                 car_stop[j] = j * kk + k
                 j += 1
-        b_off[j] = p
+        b_off[j] = head - start
+        for p in range(head - start):
+            b_dest[p] = draw_destination(uniforms[np.uint64(start + p)], columns)
         rule(RuleBatches(b_orig, b_dest, b_off[:j + 1], views, car_start[:j], car_stop[:j]),
              timing, table, scratch, car_of)
-        # time every car: its stop mask from one pass over the batch
+        # time every car
         j = 0
         for t in range(t0, t1):
             counts_t = out.counts[t]
             lost = 0
             for c0 in range(0, L, kk):
                 k = min(L, c0 + kk) - c0
-                for c in range(k):
-                    up_mask[c] = np.uint64(0)
-                    taken[c] = 0
-                for i in range(b_off[j], b_off[j + 1]):
-                    c = car_of[i]
-                    if 0 <= c < k:
-                        taken[c] += 1
-                        up_mask[c] |= one << np.uint64(b_dest[i])
-                    else:
-                        lost += 1
+                s = b_off[j]
+                e = b_off[j + 1]
+                lost += (e - s) - _stop_masks(car_of, b_dest, s, e, k, up_mask, taken)
                 for c in range(k):
                     waiting = waiting_at[(t - t0) * L + c0 + c]
                     out.rtt_s[t, c0 + c] = lobby_trip_of_mask(up_mask[c], waiting, taken[c],
@@ -157,6 +152,42 @@ def _uppeak_chain(rule, stream, ch, first, last, alias, layout, timing, table, o
             out.unallocated[t] = lost
     out.load_up[ch, 0] = aboard                    # everyone aboard rides the first stretch
     out.waiting_end[ch] = offsets[last * L] - head
+
+
+#: Cars open up to which the stop masks are built car by car (see :func:`_stop_masks`).
+CAR_BY_CAR_MASKS = 8
+
+
+@njit(cache=True, inline="always")
+def _stop_masks(car_of, dest, s, e, k, up_mask, taken):
+    """Each car c < k's stop mask (bit f for floor f) and passenger count over the batch
+    dest[s:e] with cars car_of[s:e] into up_mask[c] and taken[c]; returns how many had
+    a car c < k. Up to :data:`CAR_BY_CAR_MASKS` cars, one pass per car (a loop the
+    compiler vectorises, no store a later pass waits for); more, one pass in all."""
+    placed = 0
+    if k <= CAR_BY_CAR_MASKS:
+        for c in range(k):
+            mask = np.uint64(0)
+            n = 0
+            for i in range(s, e):
+                hit = car_of[np.uint64(i)] == c
+                mask |= np.uint64(hit) << np.uint64(dest[np.uint64(i)])
+                n += hit
+            up_mask[c] = mask
+            taken[c] = n
+            placed += n
+        return placed
+    one = np.uint64(1)
+    for c in range(k):
+        up_mask[c] = np.uint64(0)
+        taken[c] = 0
+    for i in range(s, e):
+        c = car_of[i]
+        if 0 <= c < k:
+            taken[c] += 1
+            up_mask[c] |= one << np.uint64(dest[i])
+            placed += 1
+    return placed
 
 
 @njit(cache=True, nogil=True)
@@ -371,10 +402,11 @@ def group_trips(rule, stream, alias, layout, timing, table, lobby_only, out, c0,
     """
     n_rounds = (stream.offsets.shape[0] - 1) // layout.n_cars
     R = layout.chain_rounds
+    columns = destination_table(alias)          # the up-peak draw's table (K records)
     for ch in range(c0, c1):
         first = ch * R
         last = min(n_rounds, first + R)
         if lobby_only:
-            _uppeak_chain(rule, stream, ch, first, last, alias, layout, timing, table, out)
+            _uppeak_chain(rule, stream, ch, first, last, columns, layout, timing, table, out)
         else:
             _mixed_chain(rule, stream, ch, first, last, alias, layout, timing, table, out)

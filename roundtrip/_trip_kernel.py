@@ -111,6 +111,36 @@ def draw_cell(u, alias):
     return a + (k - a) * ((x - k) < alias.prob[k])      # branch-free choice
 
 
+#: One column of the alias table as the up-peak draw reads it (:func:`destination_table`).
+DESTINATION_COLUMN = np.dtype([("prob", np.float64), ("keep", np.int64), ("other", np.int64)],
+                              align=True)
+
+
+@njit(cache=True)
+def destination_table(alias):
+    """The alias table's columns with their two destinations: column k keeps the
+    destination of cell k (``keep``) with probability ``prob[k]``, else gives that of
+    its alias cell (``other``), so that :func:`draw_destination` reads one record."""
+    K = alias.prob.shape[0]
+    table = np.empty(K, dtype=DESTINATION_COLUMN)
+    for k in range(K):
+        table[k]["prob"] = alias.prob[k]
+        table[k]["keep"] = alias.cell_dest[k]
+        table[k]["other"] = alias.cell_dest[alias.alias[k]]
+    return table
+
+
+@njit(cache=True, inline="always")
+def draw_destination(u, columns):
+    """The destination of the cell :func:`draw_cell` picks for ``u``, read from the
+    columns of :func:`destination_table` (the same draw, one record per uniform;
+    indexed unsigned, so that the compiled loop carries no negative-index fix-up)."""
+    x = u * columns.shape[0]
+    k = min(np.uint64(x), np.uint64(columns.shape[0] - 1))
+    column = columns[k]
+    return column["keep"] if (x - np.float64(k)) < column["prob"] else column["other"]
+
+
 @njit(cache=True)
 def sample_cells(uniforms, alias, origin_out, dest_out):
     """Origin-destination pairs from uniforms by the alias method (one uniform each)."""

@@ -23,7 +23,8 @@ Records
 
 The compiled functions (:func:`car_trip` and its up-peak form
 :func:`lobby_trip_of_mask`, :func:`trip_schedule`, the alias draw
-:func:`draw_cell` and :func:`sample_cells`, :func:`new_scratch`,
+:func:`draw_cell` and :func:`sample_cells` (and the up-peak form of the draw,
+:func:`draw_destination` on the columns of :func:`destination_table`), :func:`new_scratch`,
 :func:`new_schedule`) live in :mod:`roundtrip._trip_kernel` and are public
 here; they can be called from other compiled code and, slowly, from Python.
 """
@@ -35,15 +36,15 @@ from typing import NamedTuple
 import numpy as np
 
 from ._trip_kernel import (BOARDED, HIGHEST, LEFT_BEHIND, LOWEST, N_COUNTS, OFFERED, PEAK_LOAD,
-                           STOPS, ScheduleOut, TripScratch, car_trip, draw_cell,
-                           lobby_trip_of_mask, new_schedule, new_scratch, sample_cells,
-                           trip_schedule, trip_time_s)
+                           STOPS, ScheduleOut, TripScratch, car_trip, destination_table,
+                           draw_cell, draw_destination, lobby_trip_of_mask, new_schedule,
+                           new_scratch, sample_cells, trip_schedule, trip_time_s)
 from .building import Building, LiftGroup
 from .kinematics import flight_table_s
 
 __all__ = ["TripTiming", "TripStream", "TripOut", "TripSchedule", "trip_timing", "schedule_of",
            "car_trip", "lobby_trip_of_mask", "trip_schedule", "trip_time_s", "new_scratch",
-           "new_schedule", "sample_cells", "draw_cell",
+           "new_schedule", "sample_cells", "draw_cell", "destination_table", "draw_destination",
            "TripScratch", "ScheduleOut", "STOPS", "HIGHEST", "LOWEST", "BOARDED", "PEAK_LOAD",
            "LEFT_BEHIND", "OFFERED", "N_COUNTS", "COUNT_NAMES"]
 

@@ -42,8 +42,26 @@ class RuleParams(NamedTuple):
 
 
 def _digest(function: Callable) -> str:
-    """A short digest of a function's code, so that an edited rule gets a fresh cache entry."""
-    return hashlib.sha1(marshal.dumps(function.__code__)).hexdigest()[:12]
+    """A short digest of a rule's code and of the sources it may call (every module of
+    ``allocation`` and ``roundtrip``), so that an edited rule, or an edited function it
+    calls, gets a fresh cache entry: numba's disk cache checks only the file of the
+    function it compiles, and would otherwise run a rule with a stale callee."""
+    h = hashlib.sha1(marshal.dumps(function.__code__))
+    h.update(_package_sources())
+    return h.hexdigest()[:12]
+
+
+@functools.lru_cache(maxsize=1)
+def _package_sources() -> bytes:
+    """The digest of the source files of ``allocation`` and ``roundtrip`` (once a process)."""
+    from pathlib import Path
+    h = hashlib.sha1()
+    root = Path(__file__).resolve().parent.parent
+    for package in ("allocation", "roundtrip"):
+        for path in sorted((root / package).glob("*.py")):
+            h.update(path.name.encode())
+            h.update(path.read_bytes())
+    return h.digest()
 
 
 def _table(prepare, building, group, sizes, passengers_per_car) -> np.ndarray:
@@ -185,9 +203,11 @@ def _compiled(signature, function: Callable, allocates: bool):
     return cfunc(signature, cache=True, **WITHOUT_RUNTIME)(function)
 
 
-def _batch_driver(batches, timing, table, scratch, car_out):
+def _batch_driver(batches, timing, table, scratch, car_out):  # pragma: no mutate block
     """Many batches in one call: the rule (the global ``_rule_body`` of each driver's own
-    namespace, see :func:`_compile_batch_rule`) on each batch in turn."""
+    namespace, see :func:`_compile_batch_rule`) on each batch in turn. Kept out of
+    mutation testing (the pragma): its code object is reused with new globals, which a
+    mutant's wrapper (a closure) would not allow."""
     offsets = batches.offsets
     for b in range(offsets.shape[0] - 1):
         s = offsets[b]

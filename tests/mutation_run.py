@@ -60,8 +60,12 @@ def results() -> dict[str, list[str]]:
 def main(patterns: list[str]) -> int:
     env = dict(os.environ, NUMBA_NUM_THREADS="1")
     children = str(max(1, (os.cpu_count() or 1)))
-    subprocess.run([sys.executable, "-m", "mutmut", "run", "--max-children", children,
-                    *patterns], env=env, check=False)
+    run = subprocess.run([sys.executable, "-m", "mutmut", "run", "--max-children", children,
+                          *patterns], env=env, check=False)
+    if run.returncode != 0:
+        print(f"\nmutmut run failed (exit status {run.returncode}): no survival rate",
+              file=sys.stderr)
+        return run.returncode
     by_status = results()
     if patterns:
         import fnmatch
@@ -87,7 +91,7 @@ def main(patterns: list[str]) -> int:
     print(f"\nmutants checked by a test: {checked}; killed {len(killed)}, suspicious "
           f"{len(suspicious)}, survived {len(survived)}, equivalent {len(equivalent)}; "
           f"survival rate {rate:.1f} %")
-    return 0
+    return 0 if checked else 1
 
 
 if __name__ == "__main__":

@@ -179,6 +179,32 @@ def test_size_is_the_first_passing_candidate_of_a_brute_force_search(building_fi
         assert not meets[("random", 3, 13, 1.6)][0]
 
 
+def test_every_candidate_size_tried_is_the_group_it_names(building_file):
+    """Each candidate `size` lists as tried carries the figures of the very group it names
+    (cars, rated load, rated speed), as the brute-force search computes them one group
+    at a time: a search that ran the file's own car for every rated load would pass
+    the design checks whenever the answer has the file's load, but not this one."""
+    from allocation.registry import default_rules
+    from experiments.sizing import Criteria, size_group
+    from roundtrip.inputfile import load_scenario
+    scenario = load_scenario(building_file)
+    rules = default_rules()
+    criteria = Criteria(interval_max_s=1.0, hc_min_pct=11.0)   # nothing passes: all tried
+    out = size_group(scenario, rules, criteria, [3, 4], [13, 21], [2.5], trials=300,
+                     seed=7)
+    _, meets = brute_force_designs(scenario, rules, (3, 4), (13, 21), (2.5,), 1.0, 11.0,
+                                   300, 7)
+    assert {(t["rule"], t["cars"], t["rated_load_persons"], t["rated_speed_mps"])
+            for t in out["tried"]} == set(meets)
+    for t in out["tried"]:
+        _, interval, hc = meets[(t["rule"], t["cars"], t["rated_load_persons"],
+                                 t["rated_speed_mps"])]
+        assert (t["interval_s"], t["handling_capacity_pct_5min"]) == (interval, hc), t
+    by_load = {t["rated_load_persons"]: t["handling_capacity_pct_5min"]
+               for t in out["tried"] if t["rule"] == rules[0] and t["cars"] == 4}
+    assert by_load[21] > by_load[13]          # a larger car carries more (common practice)
+
+
 @pytest.mark.slow
 def test_report_end_to_end_escapes_the_building_name(tmp_path, capsys):
     f = tmp_path / "mark.toml"

@@ -201,6 +201,15 @@ def test_a_key_outside_any_section_says_where_it_belongs(building, capsys):
             fragments=["is a key outside any section", "it belongs in [building]"])
 
 
+def test_a_misspelt_key_outside_any_section_gets_the_nearest_key_and_its_section(building,
+                                                                               capsys):
+    refused(capsys, "calc", building("carz = 2\n" + BUILDING),
+            fragments=["carz = 2 is a key outside any section",
+                       "did you mean a key of [group]? did you mean 'cars'?"])
+    refused(capsys, "calc", building("qqqqq = 2\n" + BUILDING),
+            fragments=["qqqqq = 2 is a key outside any section"])
+
+
 # ------------------------------------------------------------------ options and run limits
 def test_ranges_are_counted_before_any_list_is_built():
     # Before: 53 s to a MemoryError (1:1e9:1), or no end at all (1:1e308:1e300).

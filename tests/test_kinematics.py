@@ -151,6 +151,35 @@ def test_flight_time_continuous_at_regime_boundaries(lift):
 
 
 @pytest.mark.parametrize("lift", list(LIFTS))
+def test_a_run_exactly_at_a_boundary_reaches_what_the_boundary_names(lift):
+    # Source: scipy reference (reference_run at the boundary distance itself). The
+    # shortest run that reaches the acceleration (d = 2 a^3 / j^2: four jerk phases of
+    # a/j each, worked out by integrating the jerk schedule) does reach it, and the
+    # shortest run that reaches rated speed does reach it: at the boundary the profile
+    # is labelled with the regime the boundary names, with its peak values.
+    v, a, j = LIFTS[lift]
+    d_speed, d_accel = regime_boundaries_m(v, a, j)
+    at_speed = motion_profile(d_speed, v, a, j)
+    assert at_speed.regime == 1
+    assert at_speed.peak_speed_mps == pytest.approx(v, rel=1e-12)
+    if v >= a * a / j:
+        assert d_accel == pytest.approx(2 * a ** 3 / j ** 2, rel=1e-15)
+        at_accel = motion_profile(d_accel, v, a, j)
+        assert at_accel.regime == 2
+        assert at_accel.peak_acceleration_mps2 == pytest.approx(a, rel=1e-12)
+        assert at_accel.flight_time_s == pytest.approx(reference_run(d_accel, v, a, j)[0],
+                                                       rel=1e-10)
+
+
+def test_a_run_over_no_distance_is_no_run():
+    # A limit: no distance, no time, no speed, no acceleration (every field a number).
+    prof = motion_profile(0.0, *LIFTS["mid-rise 1.6 m/s"])
+    assert prof.distance_m == 0.0 and prof.flight_time_s == 0.0
+    assert prof.peak_speed_mps == 0.0 and prof.peak_acceleration_mps2 == 0.0
+    assert prof.phase_durations_s == (0.0,) * 7
+
+
+@pytest.mark.parametrize("lift", list(LIFTS))
 def test_flight_time_increases_and_never_beats_rated_speed(lift):
     # Common practice (a limit): a rest-to-rest run over d cannot take less
     # than d/v, and a longer run never takes less time.

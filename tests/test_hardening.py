@@ -181,6 +181,8 @@ def test_a_byte_order_mark_is_accepted(tmp_path):
     ("rated_speed_mps", "2024-01-01", "group.rated_speed_mps = 2024-01-01:"),
     ("floors", "1e300", "building.floors = 1e+300:"),
     ("floors", "1" * 40, "building.floors = 1.111e+39:"),
+    ("floors", "1" * 21, "building.floors = 1.111e+20:"),      # past 20 digits: shortened
+    ("floors", "1" * 20, "building.floors = 11111111111111111111:"),
     ("population", '"many"', 'building.population = "many":'),
 ])
 def test_values_are_quoted_as_toml_spells_them(building, capsys, key, value, shown):

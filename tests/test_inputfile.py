@@ -298,3 +298,63 @@ def test_empty_file_names_both_required_sections(tmp_path):
     # Input contract (README): [building] and [group] are required.
     with pytest.raises(InputError, match=r"\[building\] is missing.*\[group\] is missing"):
         load_scenario(write(tmp_path, ""))
+
+
+def test_more_problems_than_a_paragraph_holds_are_counted(tmp_path):
+    # Input contract (inputfile docstring): every problem at once; past the twelfth the
+    # paragraph says how many more there are.
+    data = variant(**{f"group.unknown_key_{i}": 1 for i in range(15)})
+    with pytest.raises(InputError, match="15 problems") as info:
+        load_scenario(write(tmp_path, data))
+    assert str(info.value).endswith(" ... and 3 more.")
+    assert "(12) " in str(info.value) and "(13) " not in str(info.value)
+
+
+@pytest.mark.parametrize("slots, accepted", [(48, True), (49, False)])
+def test_a_demand_profile_covers_at_most_four_hours(tmp_path, slots, accepted):
+    # Input contract (README): at most 48 five-minute slots in traffic.profile_pct_5min.
+    data = variant(**{"traffic.profile_pct_5min": [10.0] * slots})
+    if accepted:
+        assert load_scenario(write(tmp_path, data)).traffic.profile_pct_5min is not None
+    else:
+        with pytest.raises(InputError, match="has 49 rates: give at most 48 "
+                                             r"\(four hours of 5-minute slots\)"):
+            load_scenario(write(tmp_path, data))
+
+
+def test_a_traffic_section_without_a_demand_asks_for_one(tmp_path):
+    data = variant(**{"traffic.arrival_rate_pct_5min": None, "traffic.incoming": 1.0})
+    with pytest.raises(InputError) as info:
+        load_scenario(write(tmp_path, data))
+    text = str(info.value)
+    assert "traffic.arrival_rate_pct_5min is missing: give the design demand, a rate > 0" in text
+    assert "[% of population per 5 min], or traffic.profile_pct_5min" in text
+
+
+def test_a_file_that_grows_while_it_is_read_is_refused(tmp_path, monkeypatch):
+    # The size is checked before reading and again on what was read (a file being
+    # written by another program may grow in between).
+    import os
+    from pathlib import Path
+
+    from roundtrip.inputfile import MAX_FILE_BYTES
+    path = tmp_path / "growing.toml"
+    path.write_bytes(b"#" * (MAX_FILE_BYTES + 10))
+    small = os.stat_result((0o100644, 0, 0, 1, 0, 0, 100, 0, 0, 0))
+    monkeypatch.setattr(Path, "stat", lambda self, **kw: small)
+    with pytest.raises(InputError, match=f"has more than {MAX_FILE_BYTES:,} bytes: an input "
+                                         f"file may have at most {MAX_FILE_BYTES:,} bytes"):
+        load_scenario(path)
+
+
+def test_a_read_error_is_named_by_the_system_message(tmp_path, monkeypatch):
+    import builtins
+    import errno
+    path = write(tmp_path, VALID)
+
+    def failing_open(*args, **kwargs):
+        raise OSError(errno.EIO, "Input/output error")
+    monkeypatch.setattr(builtins, "open", failing_open)
+    with pytest.raises(InputError) as info:
+        load_scenario(path)
+    assert str(info.value) == f"cannot read {path}: Input/output error."

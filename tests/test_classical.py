@@ -343,7 +343,11 @@ def test_worked_example_by_hand():
     #   HC5 = 300 x 3 / 24.805083                                   = 36.282886 persons
     #   %POP = 100 x 36.282886 / 200                                = 18.141443 %
     #   car load = 3/8 = 37.5 % <= 50 %, so AWT = 0.4 x INT         = 9.922033 s
+    #   ATT = 0.5 H t_v + 0.5 S t_s + P t_p (CIBSE Guide D (2015), from memory)
+    #       = 0.5 x 3.65575 x 2.333333 + 0.5 x 2.38 x 7.5 + 3 x 1.2
+    #       = 4.265042 + 8.925 + 3.6                                = 16.790042 s
     r = uppeak_calculation(WREN_COURT, WREN_GROUP, 3)
+    assert r.average_transit_time_s == pytest.approx(16.790042, abs=5e-7)
     assert r.expected_stops == pytest.approx(2.38, abs=1e-12)
     assert r.highest_reversal_floor == pytest.approx(3.65575, abs=1e-12)
     assert r.rated_speed_reached_in_one_floor

@@ -436,14 +436,13 @@ def simulate_trips(building: Building, group: LiftGroup, passengers: float, *,
     return _result(building, group, traffic, passengers, poisson, sums, seed, sample)
 
 
-def _result(building, group, traffic, passengers, poisson, sums: TripSums, seed, sample,
-            **extra) -> MonteCarloResult:
+def _result(building, group, traffic, passengers, poisson, sums: TripSums, seed,
+            sample) -> MonteCarloResult:
     carried = sums.column(K.BOARDED)
     car_load = sums.busiest_stretch_load
     grows = sums.arrivals > 0 and carried.mean * sums.trips < 0.99 * sums.arrivals
-    saturated = extra.pop("saturated", None)
-    if saturated is None:            # given load: above the design load, or the queue grows
-        saturated = bool(car_load > group.design_load_persons * 1.001 or grows)
+    # at a given load: saturated above the design load, or when the queue grows
+    saturated = bool(car_load > group.design_load_persons * 1.001 or grows)
     return MonteCarloResult(
         building=building.name, cars=group.cars, rated_load_persons=group.rated_load_persons,
         design_load_persons=group.design_load_persons,
@@ -462,7 +461,7 @@ def _result(building, group, traffic, passengers, poisson, sums: TripSums, seed,
         left_behind_share=sums.left_trips / sums.trips,
         left_behind_per_trip=sums.column(K.LEFT_BEHIND).mean,
         passengers_arrived=sums.arrivals, passengers_still_waiting=sums.waiting_end,
-        trials=sums.trips, seed=int(seed), saturated=saturated, sample=sample, **extra)
+        trials=sums.trips, seed=int(seed), saturated=saturated, sample=sample)
 
 
 def simulate_demand(building: Building, group: LiftGroup, traffic: Traffic, *,

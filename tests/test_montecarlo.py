@@ -437,6 +437,22 @@ def test_distribution_of_stops_is_the_occupancy_distribution():
                                                           "Pr(S >= 8)")
 
 
+def test_streamed_moments_equal_the_moments_of_the_whole_sample():
+    # Numerical reference: numpy's mean and variance of every trip's round-trip time. The
+    # run keeps running sums chain by chain and merges them chunk by chunk by the pairwise
+    # update of "Updating formulae and a pairwise algorithm for computing sample
+    # variances" (COMPSTAT, 1982); over three chunks of unequal size the merged moments
+    # must equal the whole sample's to rounding.
+    from roundtrip.stream import CHUNK_TRIPS
+    b = CLASSICAL_BUILDINGS[0]
+    trials = 2 * CHUNK_TRIPS + 12_345
+    r = simulate_trips(b, SLOW_GROUP, 6.0, trials=trials, seed=5, keep_sample=True)
+    x = r.sample.rtt_s
+    assert x.size == trials == r.round_trip_time.n
+    assert r.round_trip_time.mean == pytest.approx(float(np.mean(x)), rel=1e-12)
+    assert r.round_trip_time.std == pytest.approx(float(np.std(x, ddof=1)), rel=1e-9)
+
+
 # ---------------------------------------------------------------- determinism and limits
 def test_capacity_is_never_exceeded():
     b = CLASSICAL_BUILDINGS[0]

@@ -233,8 +233,7 @@ def executor(workers: int | None = None, scheduler: str | None = None,
     if scheduler:
         distributed = _need_distributed("--scheduler")
         try:
-            client = distributed.Client(scheduler, timeout=f"{CONNECT_TIMEOUT_S}s",
-)
+            client = distributed.Client(scheduler, timeout=f"{CONNECT_TIMEOUT_S}s")
         except (OSError, TimeoutError, ValueError, TypeError) as exc:
             raise InputError([f"--scheduler {scheduler!r}: no Dask scheduler answered there "
                               f"within {CONNECT_TIMEOUT_S} s ({type(exc).__name__}: {exc}). "

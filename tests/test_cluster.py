@@ -147,3 +147,30 @@ def test_an_unreachable_scheduler_is_a_clear_input_error(buildings, tmp_path, ca
     assert f"--scheduler 'tcp://127.0.0.1:{port}'" in err and "dask scheduler" in err
     assert "Traceback" not in err
     assert not out.exists()
+
+
+def _without_paths_and_times(d: dict) -> dict:
+    """The report's JSON less what names this run's folder or the hour it ran."""
+    def clean(x):
+        if isinstance(x, dict):
+            return {k: clean(v) for k, v in x.items() if k not in
+                    ("report", "figures", "csv", "generated_at")}
+        if isinstance(x, list):
+            return [clean(v) for v in x]
+        return x
+    return clean(d)
+
+
+@pytest.mark.slow
+def test_report_on_two_workers_equals_the_in_process_report(buildings, tmp_path, capsys):
+    """The whole job (its sweeps, the sensitivity study and the sizing as tasks) gives the
+    same figures and the same sweep.csv on two workers as in process."""
+    args = ["report", buildings[0], "--trials", "300", "--json", "--quiet"]
+    assert main([*args, "--out", str(tmp_path / "here")]) == 0
+    here = json.loads(capsys.readouterr().out)
+    assert main([*args, "--out", str(tmp_path / "two"), "--workers", "2"]) == 0
+    two = json.loads(capsys.readouterr().out)
+    assert _without_paths_and_times(two) == _without_paths_and_times(here)
+    assert here["decision"]["sensitivity"]                   # the study ran as tasks
+    assert (tmp_path / "two" / "sweep.csv").read_bytes() == \
+        (tmp_path / "here" / "sweep.csv").read_bytes()

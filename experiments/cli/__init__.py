@@ -318,6 +318,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     rep.add_argument("--out", metavar="DIR", required=True, help="output folder")
     rep.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(rep)
+    _add_cluster(rep)
     _add_decision_options(rep)
     _add_json(rep)
     rep.set_defaults(handler="experiments.cli.report")

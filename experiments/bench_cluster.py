@@ -18,8 +18,8 @@ round-trip screen; a grid of cars, rated loads and speeds, see :data:`STUDY`) is
 It prints the seconds of (i) and (ii), the speed-up (ii) over (i) with and without
 the cluster's start-up, the overhead per task, the per-task times of the study, and
 an **estimate** (not a measurement) for a cluster of ``--estimate-workers`` workers:
-each search in waves of :data:`experiments.tasks.LOOKAHEAD_PER_WORKER` tasks per worker,
-a wave taking max(its longest task, its work / workers) + the wave latency + its tasks x
+each search in waves of :data:`experiments.tasks.LOOKAHEAD_PER_WORKER` tasks per worker
+(the cluster's window slides; waves are the simpler, pessimistic model), a wave taking max(its longest task, its work / workers) + the wave latency + its tasks x
 the overhead per task, from the one-thread per-task times measured in (i) (candidates the in-process
 search did not need, which a wider wave computes on the side, counted at the median task
 time). The kernels are compiled before anything is timed. Speed is measured here, never
@@ -33,11 +33,13 @@ import math
 import statistics
 import time
 
-#: The sizing study: the demo building, cars 1 ... 9 and the standard neighbours of its
-#: car size and speed (as the report sizes it), with more replications than the default
-#: so that it takes about a minute in process on a two-core machine.
-STUDY = ["--cars", "1:9", "--loads", "13,16,17,21", "--speeds", "1.6,2.0,2.5,3.0",
-         "--replications", "200", "--ci-target", "0.2", "--quiet", "--json"]
+#: The sizing study: the demo building, cars 1 ... 9, four rated loads and four speeds,
+#: the peak sizing with 200 replications per candidate and the round-trip screen to a
+#: 0.2 % interval, so that it takes the better part of a minute in process on two cores.
+STUDY = dict(cars_list=list(range(1, 10)), loads=[13, 16, 17, 21], speeds=[1.6, 2.0, 2.5, 3.0],
+             replications=200, ci_target_pct=0.2)
+#: A small study that compiles every kernel the study calls.
+WARM = dict(cars_list=[4, 5], loads=[16], speeds=[2.0], replications=2, trials=200)
 
 
 def _nothing(x):
@@ -85,20 +87,28 @@ class _Timed:
         return out
 
 
-def _study(ex, argv):
-    """The sizing of the demo building on the executor ``ex``: (result, seconds)."""
-    from experiments.cli import build_parser
-    from experiments.cli.size import sizing, sizing_plan
+def _study(ex, *, cars_list, loads, speeds, replications, trials=None, ci_target_pct=0.5,
+           threads=None, seed=2026):
+    """Both searches of `liftsort size` for the demo building on the executor ``ex``:
+    (result, seconds)."""
+    from allocation.registry import default_rules, headline_control
     from experiments.data import demo_building_path
+    from experiments.decision import ServiceCriterion
+    from experiments.sizing import default_criteria, size_by_service, size_group
     from experiments.tasks import file_digest
     from roundtrip.inputfile import load_scenario
     path = demo_building_path()
-    args = build_parser().parse_args(["size", str(path), *argv])
     scenario = load_scenario(path)
-    plan = sizing_plan(scenario, args)
+    digest = file_digest(path.read_bytes())
     start = time.perf_counter()
-    result = sizing(scenario, args, plan, ex, file_digest(path.read_bytes()))
-    return result, time.perf_counter() - start
+    service = size_by_service(scenario, headline_control(), ServiceCriterion(), cars_list,
+                              loads, speeds, seed=seed, replications=replications, ex=ex,
+                              building_file_sha256=digest)
+    screen = size_group(scenario, default_rules(), default_criteria(scenario), cars_list,
+                        loads, speeds, trials=trials, ci_target_pct=ci_target_pct,
+                        max_trials=2_000_000, seed=seed, threads=threads, ex=ex,
+                        building_file_sha256=digest)
+    return {"service": service, "screen": screen}, time.perf_counter() - start
 
 
 def estimate(times_by_search: dict, candidates: int, workers: int, latency_s: float,
@@ -136,30 +146,25 @@ def main(argv=None) -> dict:
     if opts.lookahead is not None:
         tasks_module.LOOKAHEAD_PER_WORKER = opts.lookahead
 
-    from experiments.cli.caches import choose_cache_folders
-    caches = choose_cache_folders()
     from experiments.tasks import InProcess, Task, executor
 
-    # compile every kernel the study calls, outside the timings
-    _study(InProcess(), ["--cars", "4:5", "--replications", "2", "--trials", "200",
-                         "--quiet", "--json"])
+    _study(InProcess(), **WARM)          # compile every kernel, outside the timings
 
     import numba
     timed = _Timed(InProcess())
-    here, here_s = _study(timed, STUDY)
+    here, here_s = _study(timed, **STUDY)
     cores = numba.get_num_threads()
     numba.set_num_threads(1)
     single = _Timed(InProcess(1))
-    here_1, here_1_s = _study(single, [*STUDY, "--threads", "1"])
+    here_1, here_1_s = _study(single, **STUDY, threads=1)
     numba.set_num_threads(cores)
 
     start = time.perf_counter()
     with executor(workers=opts.workers) as ex:
         startup_s = time.perf_counter() - start
         # the workers compile (from numba's disk cache) on their first tasks: warm them
-        _study(ex, ["--cars", "4:5", "--replications", "2", "--trials", "200", "--quiet",
-                    "--json"])
-        there, there_s = _study(ex, STUDY)
+        _study(ex, **WARM)
+        there, there_s = _study(ex, **STUDY)
         n = opts.trivial
         start = time.perf_counter()
         ex.run([Task(("trivial", i), _nothing, {"x": i}) for i in range(n)])
@@ -168,16 +173,14 @@ def main(argv=None) -> dict:
         for i in range(20):
             ex.run([Task(("one", i), _nothing, {"x": i})])
         latency_s = (time.perf_counter() - start) / 20
-    caches.remove()
     parallel = machine_parallelism(opts.workers)
-    same = json.dumps(here, sort_keys=True) == json.dumps(there, sort_keys=True) == \
-        json.dumps(here_1, sort_keys=True)
+    same = len({json.dumps(r, sort_keys=True, default=str) for r in (here, there, here_1)}) == 1
 
     by_search: dict = {}
     for key, seconds in single.times:
         by_search.setdefault(key[1], []).append(seconds)
     all_times = [s for _, s in single.times]
-    candidates = 9 * 4 * 4
+    candidates = len(STUDY["cars_list"]) * len(STUDY["loads"]) * len(STUDY["speeds"])
     guess = estimate(by_search, candidates, opts.estimate_workers, latency_s, overhead_s)
     figures = {
         "in_process_s": here_s,
@@ -204,7 +207,7 @@ def main(argv=None) -> dict:
         "estimate_s": guess,
         "estimate_speed_up": here_s / guess,
     }
-    print(f"sizing study of the demo building ({' '.join(STUDY[:-2])}):")
+    print(f"sizing study of the demo building ({STUDY}):")
     print(f"  in process ({cores} threads, the default): {here_s:8.1f} s")
     print(f"  in process (1 thread):            {here_1_s:8.1f} s")
     print(f"  --workers {opts.workers} (cluster running):   {there_s:8.1f} s   speed-up "

@@ -28,10 +28,11 @@ Executors (:func:`executor`):
 Both run a list of tasks and return their results in the order of the list
 (:meth:`InProcess.run`, :meth:`DaskCluster.run`), calling ``on_done`` as each task
 completes (on a cluster in the order they complete), which drives the progress bar.
-A search that stops at the first passing candidate (sizing) runs its candidates in waves
-of :attr:`lookahead` tasks (:func:`ordered_search`): one at a time in process, a few per
-worker on a cluster, and takes the first passing one in the search's order, so that the
-answer and the list of candidates tried are the same either way.
+A search that stops at the first passing candidate (sizing) runs its candidates
+:attr:`lookahead` at a time (:func:`ordered_search`): one at a time in process; on a
+cluster a few per worker in flight beyond the last candidate taken (a sliding window), and
+takes the first passing one in the search's order, so that the answer and the list of
+candidates tried are the same either way.
 
 On a cluster each task is retried once when it raises (a worker lost mid-run has its
 tasks rerun elsewhere by the scheduler, which does not count as a retry); a task that
@@ -172,6 +173,52 @@ class DaskCluster:
             for f in futures:
                 f.cancel()
 
+    def search(self, count: int, make_task, take, on_done=None) -> None:
+        """:func:`ordered_search` with a sliding window: up to :attr:`lookahead` candidates
+        beyond the last one taken are in flight at once, the next submitted as soon as one
+        is taken, so that no worker waits for the slowest task of a wave."""
+        from distributed import as_completed
+        token = uuid.uuid4().hex[:12]
+        index: dict = {}                     # future key -> candidate
+        keys: dict = {}                      # candidate -> task key
+        futures = []
+        done: dict = {}
+        pending = as_completed()
+        submitted = taken = 0
+
+        def submit(i):
+            task = make_task(i)
+            keys[i] = task.key
+            f = self.client.submit(_call, task.function, task.kwargs,
+                                   key=f"{task.name}-{token}", pure=False, retries=1)
+            index[f.key] = i
+            futures.append(f)
+            pending.add(f)
+        try:
+            while submitted < min(count, self.lookahead):
+                submit(submitted)
+                submitted += 1
+            for future in pending:
+                i = index[future.key]
+                if future.status != "finished":
+                    exc = future.exception()
+                    if _passes_through(exc):
+                        raise exc
+                    raise TaskFailed(keys[i], exc)
+                done[i] = future.result()
+                if on_done is not None:
+                    on_done()
+                while taken in done:
+                    if take(taken, done.pop(taken)):
+                        return
+                    taken += 1
+                while submitted < count and submitted < taken + self.lookahead:
+                    submit(submitted)
+                    submitted += 1
+        finally:
+            for f in futures:
+                f.cancel()
+
 
 def ordered_search(ex, count: int, make_task: Callable[[int], Task],
                    take: Callable[[int, object], bool], on_done: Callable | None = None) -> None:
@@ -183,8 +230,11 @@ def ordered_search(ex, count: int, make_task: Callable[[int], Task],
     few per worker on a cluster), so a cluster computes a few candidates the search then
     does not take; what the search answers does not depend on the wave, provided a task's
     result does not depend on the state ``make_task`` saw except in parts ``take`` then
-    ignores.
+    ignores. An executor with its own ``search`` (a cluster: a sliding window instead of
+    waves) runs it.
     """
+    if hasattr(ex, "search"):
+        return ex.search(count, make_task, take, on_done)
     i = 0
     while i < count:
         wave = [make_task(j) for j in range(i, min(count, i + ex.lookahead))]

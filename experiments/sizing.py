@@ -286,7 +286,7 @@ def installation_order(cars_list, loads, speeds, cost_weight: float | None = Non
 
 def _service_task(scenario: Scenario, group, destination_control: str, criterion, *,
                   window_s: float, minutes: float, replications: int, seed: int,
-                  peak_if_filtered: bool) -> dict:
+                  peak_if_filtered: bool, threads=None) -> dict:
     """One candidate of the peak sizing: the round-trip filter's most handling capacity
     [% / 5 min], then (unless the filter fails and ``peak_if_filtered`` is False) the peak
     simulation of conventional control and the destination control on the same arrivals."""
@@ -303,7 +303,7 @@ def _service_task(scenario: Scenario, group, destination_control: str, criterion
         return {"most": most, "runs": None}
     study = simulate_peak(scenario.building, group, scenario.traffic, [destination_control],
                           window_s=window_s, minutes=minutes, replications=replications,
-                          seed=seed, slots=False)
+                          seed=seed, slots=False, threads=threads)
     runs = []
     for run in study.runs:
         ok, why = meets(run, study.runs[0], criterion)
@@ -346,6 +346,7 @@ def size_by_service(scenario: Scenario, destination_control: str, criterion, car
     if scale_times is None:
         scale_times = scenario.group.times_scale_with_car_size
     ex = InProcess() if ex is None else ex
+    threads = ex.threads               # one per worker on a cluster; results do not depend on it
     names = ["conventional", destination_control]
     demand = scenario.traffic.arrival_rate_pct_5min
     name = scenario.building.name
@@ -365,7 +366,7 @@ def size_by_service(scenario: Scenario, destination_control: str, criterion, car
                     dict(scenario=scenario, group=group, destination_control=destination_control,
                          criterion=criterion, window_s=window_s, minutes=minutes,
                          replications=replications, seed=stream_seed,
-                         peak_if_filtered=not spare))
+                         peak_if_filtered=not spare, threads=threads))
 
     def take(i, result):
         cars, load, speed = order[i]

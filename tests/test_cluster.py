@@ -120,6 +120,32 @@ def test_a_worker_killed_mid_run_leaves_a_complete_correct_result(buildings, tmp
     assert before - after                                 # ... and replaced by its nanny
 
 
+def fails_once(marker: str, function, **kwargs):
+    """Raise the first time any worker runs it (the marker file says it happened), then run
+    ``function``: a passing fault."""
+    try:
+        fd = os.open(marker, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
+    except FileExistsError:
+        return function(**kwargs)
+    os.close(fd)
+    raise ConnectionResetError("a passing fault, made by the test")
+
+
+def test_a_task_that_fails_once_is_retried_and_the_result_is_complete(buildings, tmp_path,
+                                                                      capsys, cluster,
+                                                                      monkeypatch):
+    assert main(["sweep", *buildings, *SWEEP, "--out", str(tmp_path / "here"), "--json"]) == 0
+    here = _rows(capsys)
+    marker = tmp_path / "failed"
+    monkeypatch.setattr(sweep_module, "_design_load_task",
+                        functools.partial(fails_once, str(marker),
+                                          sweep_module._design_load_task))
+    assert main(["sweep", *buildings, *SWEEP, "--out", str(tmp_path / "again"), "--json",
+                 "--scheduler", cluster.scheduler_address]) == 0
+    assert marker.exists()                                # one task did fail, once
+    assert _rows(capsys) == here
+
+
 def test_a_task_that_raises_on_the_cluster_is_reported_by_its_key(buildings, tmp_path, capsys,
                                                                    cluster, monkeypatch):
     monkeypatch.setattr(sweep_module, "_demand_point_task",

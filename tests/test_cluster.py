@@ -1,7 +1,8 @@
 """The same studies on a local Dask cluster (``dask.distributed.LocalCluster``, two worker
-processes): the tables equal the in-process ones byte for byte, a worker killed mid-run
-leaves a complete and correct result, a task that raises is reported by its key with exit
-status 1 and no partial file, and an unreachable scheduler is a clear input error.
+processes): the tables equal the in-process ones byte for byte (sweep, size and the whole
+report job), a worker killed mid-run leaves a complete and correct result, a task that
+fails once is retried, a task that keeps raising is reported by its key with exit status 1
+and no partial file, and an unreachable scheduler is a clear input error.
 
 Needs the cluster extra (pip install '.[cluster]'); without it these tests are skipped,
 except where LIFTSORT_REQUIRE_CLUSTER_TESTS=1 (CI) turns the skip into a failure.

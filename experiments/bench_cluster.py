@@ -6,8 +6,9 @@ round-trip screen; a grid of cars, rated loads and speeds, see :data:`STUDY`) is
 (i)   in this process, as `liftsort size` runs it by default (kernels on every core),
       and again on one thread (as a worker runs it), each task timed;
 (ii)  on a local Dask cluster of ``--workers`` processes (one thread each), the cluster
-      started beforehand and its start-up timed apart; the result is checked to equal
-      (i) exactly;
+      started beforehand and its start-up timed apart, and on a cluster of one worker (the
+      cluster's own cost, and the scaling from one worker to ``--workers``); every result
+      is checked to equal (i) exactly;
 (iii) the machine's parallelism as this run finds it: pure-Python arithmetic in one
       process, then in ``--workers`` processes at once (what the cores give when other
       work shares them; the speed-up of (ii) is bounded by it);
@@ -20,7 +21,9 @@ the cluster's start-up, the overhead per task, the per-task times of the study, 
 an **estimate** (not a measurement) for a cluster of ``--estimate-workers`` workers:
 each search in waves of :data:`experiments.tasks.LOOKAHEAD_PER_WORKER` tasks per worker
 (the cluster's window slides; waves are the simpler, pessimistic model), a wave taking max(its longest task, its work / workers) + the wave latency + its tasks x
-the overhead per task, from the one-thread per-task times measured in (i) (candidates the in-process
+the overhead per task, from the one-thread per-task times measured in (i), scaled by how
+much slower the one-worker cluster of (ii) ran the whole study than one thread in process
+(candidates the in-process
 search did not need, which a wider wave computes on the side, counted at the median task
 time). The kernels are compiled before anything is timed. Speed is measured here, never
 in timed tests.
@@ -173,14 +176,21 @@ def main(argv=None) -> dict:
         for i in range(20):
             ex.run([Task(("one", i), _nothing, {"x": i})])
         latency_s = (time.perf_counter() - start) / 20
+    with executor(workers=1) as ex:      # the same on one worker: the cluster's own cost
+        _study(ex, **WARM)
+        there_1, there_1_s = _study(ex, **STUDY)
     parallel = machine_parallelism(opts.workers)
-    same = len({json.dumps(r, sort_keys=True, default=str) for r in (here, there, here_1)}) == 1
+    same = len({json.dumps(r, sort_keys=True, default=str)
+                for r in (here, there, here_1, there_1)}) == 1
 
     by_search: dict = {}
     for key, seconds in single.times:
         by_search.setdefault(key[1], []).append(seconds)
     all_times = [s for _, s in single.times]
     candidates = len(STUDY["cars_list"]) * len(STUDY["loads"]) * len(STUDY["speeds"])
+    # a task on a worker takes as long as on one worker of (ii), not as in process
+    slowdown = max(1.0, there_1_s / here_1_s)
+    by_search = {k: [t * slowdown for t in v] for k, v in by_search.items()}
     guess = estimate(by_search, candidates, opts.estimate_workers, latency_s, overhead_s)
     figures = {
         "in_process_s": here_s,
@@ -190,6 +200,8 @@ def main(argv=None) -> dict:
         "lookahead_per_worker": tasks_module.LOOKAHEAD_PER_WORKER,
         "cluster_s": there_s,
         "cluster_startup_s": startup_s,
+        "one_worker_s": there_1_s,
+        "scaling_one_to_workers": there_1_s / there_s,
         "speed_up": here_s / there_s,
         "speed_up_over_one_thread": here_1_s / there_s,
         "speed_up_with_startup": here_s / (there_s + startup_s),
@@ -203,9 +215,11 @@ def main(argv=None) -> dict:
         "task_s_median": statistics.median(all_times),
         "task_s_max": max(all_times),
         "task_s_total": sum(all_times),
+        "worker_slowdown": slowdown,
         "estimate_workers": opts.estimate_workers,
         "estimate_s": guess,
         "estimate_speed_up": here_s / guess,
+        "estimate_s_per_task_overhead_part": overhead_s * candidates * len(by_search),
     }
     print(f"sizing study of the demo building ({STUDY}):")
     print(f"  in process ({cores} threads, the default): {here_s:8.1f} s")
@@ -216,6 +230,8 @@ def main(argv=None) -> dict:
           f"(look-ahead {tasks_module.LOOKAHEAD_PER_WORKER} per worker)")
     print(f"  cluster start-up:                 {startup_s:8.1f} s   speed-up with it "
           f"{figures['speed_up_with_startup']:.2f}x")
+    print(f"  --workers 1:                      {there_1_s:8.1f} s   (1 -> {opts.workers} "
+          f"workers: {figures['scaling_one_to_workers']:.2f}x)")
     print(f"  same result as in process:        {same}")
     print(f"  machine parallelism now: {parallel:.2f} of {opts.workers} processes' worth "
           f"(the bound on the speed-up here)")
@@ -226,7 +242,8 @@ def main(argv=None) -> dict:
           f"per task min {figures['task_s_min']:.2f} s, median {figures['task_s_median']:.2f} s, "
           f"max {figures['task_s_max']:.2f} s, total {figures['task_s_total']:.1f} s")
     print(f"  ESTIMATE (not measured) for {opts.estimate_workers} workers, from the per-task "
-          f"times above: {guess:.1f} s, {figures['estimate_speed_up']:.1f}x over in process "
+          f"times above x {slowdown:.2f} (one worker against one thread in process): "
+          f"{guess:.1f} s, {figures['estimate_speed_up']:.1f}x over in process "
           f"(bounded by the longest task, {figures['task_s_max']:.2f} s, per wave)")
     if not math.isfinite(guess):
         raise SystemExit("the estimate is not finite")

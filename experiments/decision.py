@@ -327,19 +327,37 @@ def _step(scenario, control, criterion, *, name, label, seed, replications, wind
 def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *,
                 seed: int = 0, replications: int = DECISION_REPLICATIONS,
                 window_s: float = 5.0, minutes: float = 60.0, base=None,
-                inputs=SENSITIVITY_INPUTS, on_step=None) -> list[SensitivityStep]:
+                inputs=SENSITIVITY_INPUTS, on_step=None, ex=None,
+                building_file_sha256: str = "") -> list[SensitivityStep]:
     """The decision figures with each input moved down and up by its step (see the module
-    notes), then, apart, the inputs as given on another seed (the Monte Carlo error of the
-    capacities). ``base`` (optional): the unmoved capacities, to start the searches near
-    them."""
+    notes), then, apart, the inputs as given on another stream (the Monte Carlo error of
+    the capacities). ``base`` (optional): the unmoved capacities, to start the searches
+    near them.
+
+    Each step is one task (:mod:`experiments.tasks`), run on the executor ``ex`` (default:
+    in process); ``on_step`` is called as each completes. The moved steps run on the
+    decision's own seed, the stream of the unmoved figures, so that a step's difference is
+    the input's and not the draw's (common random numbers); the Monte Carlo step runs on
+    ``task_seed(seed, ("sensitivity", building, digest, "Monte Carlo"))``, another
+    stream derived from the run's seed and its key alone.
+    """
     from peak.simulation import resolve_controls
+
+    from .tasks import InProcess, Task, task_seed
+    ex = InProcess() if ex is None else ex
     delayed = resolve_controls([control])[-1].kind == "delayed"
     low, tol = 1.0, CAPACITY_TOLERANCE_PCT
     if base is not None:                    # search near the unmoved capacities
         known = [c.handling_capacity_pct_5min for c in base if c.handling_capacity_pct_5min]
         low = max(1.0, math.floor(min(known) - 3.0)) if known else 1.0
-    run = dict(replications=replications, minutes=minutes, low=low, tol=tol, on_step=on_step)
-    steps = []
+    run = dict(replications=replications, minutes=minutes, low=low, tol=tol, on_step=None)
+    name_ = scenario.building.name
+    tasks = []
+
+    def add(moved, name, label, **kwargs):
+        tasks.append(Task(("sensitivity", name_, building_file_sha256, name, label), _step,
+                          dict(scenario=moved, control=control, criterion=criterion,
+                               name=name, label=label, **run, **kwargs)))
     for name in inputs:
         if name == "allocation window" and not delayed:
             continue                         # an immediate policy has no window
@@ -347,10 +365,9 @@ def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *
             cars = scenario.group.cars
             for k in sorted({cars - 1, 2}, reverse=True):
                 if 2 <= k < cars:
-                    steps.append(_step(scenario, control, criterion, name=name,
-                                       label=f"{k - cars:+d} car{'s' if cars - k > 1 else ''} "
-                                             f"({k} of {cars} open)", seed=seed,
-                                       window_s=window_s, cars_open=k, **run))
+                    add(scenario, name, f"{k - cars:+d} car{'s' if cars - k > 1 else ''} "
+                                        f"({k} of {cars} open)",
+                        seed=seed, window_s=window_s, cars_open=k)
             continue
         for sign in (-1, 1):
             window = window_s
@@ -361,12 +378,11 @@ def sensitivity(scenario: Scenario, control: str, criterion: ServiceCriterion, *
                 moved, label = _moved(scenario, name, sign)
             if moved is None:
                 continue
-            steps.append(_step(moved, control, criterion, name=name, label=label, seed=seed,
-                               window_s=window, **run))
-    steps.append(_step(scenario, control, criterion, name="Monte Carlo",
-                       label="another seed", seed=seed + 1, window_s=window_s, monte_carlo=True,
-                       **run))
-    return steps
+            add(moved, name, label, seed=seed, window_s=window)
+    add(scenario, "Monte Carlo", "another seed",
+        seed=task_seed(seed, ("sensitivity", name_, building_file_sha256, "Monte Carlo")),
+        window_s=window_s, monte_carlo=True)
+    return ex.run(tasks, on_step)
 
 
 def turns_on(steps, base_outcome: str) -> list[str]:
@@ -546,7 +562,7 @@ def decide(scenario: Scenario, destination_control: str, criterion: ServiceCrite
            study=None, bounds=None, bound_rule: str = BOUND_RULE, seed: int = 0,
            replications: int = DECISION_REPLICATIONS, window_s: float = 5.0,
            minutes: float = 60.0, with_sensitivity: bool = True, threads=None,
-           on_step=None) -> Decision:
+           on_step=None, ex=None, building_file_sha256: str = "") -> Decision:
     """The decision for the file's building: the peak simulation at the design demand
     (``study``, or run here), each control's handling capacity at the criterion, the two
     round-trip bounds (``bounds``, or run here) and the sensitivity of the decision figures."""
@@ -567,6 +583,7 @@ def decide(scenario: Scenario, destination_control: str, criterion: ServiceCrite
     if with_sensitivity:
         steps = tuple(sensitivity(scenario, destination_control, criterion, seed=seed,
                                   replications=replications, window_s=window_s,
-                                  minutes=minutes, base=caps, on_step=on_step))
+                                  minutes=minutes, base=caps, on_step=on_step, ex=ex,
+                                  building_file_sha256=building_file_sha256))
     return Decision(scenario.building.name, t.arrival_rate_pct_5min, scenario.group.cars,
                     destination_control, criterion, study, caps, tuple(bounds), steps, int(seed))

@@ -59,7 +59,7 @@ def _p(x) -> str:
 def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: int = 2026,
             ci_target_pct: float = 0.5, trials: int | None = None,
             max_trials: int = 1_000_000, quiet: bool = True, threads=None, stages=None,
-            destination_control: str | None = None, criterion=None) -> dict:
+            destination_control: str | None = None, criterion=None, ex=None) -> dict:
     """Run the whole job and write ``report.html`` (and the charts, sweep.csv) into out_dir.
 
     ``out_dir`` should be a folder of this run alone (the command line gives the private
@@ -69,7 +69,9 @@ def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: 
     as it begins (see :class:`experiments.progress.Stages`). ``destination_control``: the
     control the decision is stated for (default: the registry's declared one,
     :func:`allocation.registry.headline_control`); ``criterion``: the service criterion
-    (default :class:`experiments.decision.ServiceCriterion`).
+    (default :class:`experiments.decision.ServiceCriterion`). ``ex``: the executor of the
+    studies' tasks (the sweeps, the sensitivity study, the sizing; default in process,
+    :mod:`experiments.tasks`); the report is the same either way.
     """
     from .progress import no_stages
     stages = no_stages if stages is None else stages
@@ -77,7 +79,8 @@ def run_job(scenario: Scenario, input_path: str | Path, out_dir: Path, *, seed: 
         return _run_job(scenario, input_path, out_dir, worker, seed=seed,
                         ci_target_pct=ci_target_pct, trials=trials, max_trials=max_trials,
                         quiet=quiet, threads=threads, stages=stages,
-                        destination_control=destination_control, criterion=criterion)
+                        destination_control=destination_control, criterion=criterion,
+                        ex=ex)
 
 
 def _bounds_from_sweep(opens, rule: str, cars: int) -> tuple:
@@ -106,7 +109,7 @@ def sizing_candidates(group, extra_cars: int = 3) -> dict:
 
 
 def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, trials, max_trials,
-             quiet, threads, stages, destination_control, criterion):
+             quiet, threads, stages, destination_control, criterion, ex=None):
     from allocation.registry import default_rules, headline_control
     from batchrounds.montecarlo import compare_rules
     from roundtrip.classical import demand_calculation, is_uppeak
@@ -118,7 +121,10 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
     from .report import write_report
     from .sizing import size_by_service
     from .sweep import demand_sweep
+    from .tasks import InProcess, file_digest
 
+    ex = InProcess(threads) if ex is None else ex
+    digest = file_digest(Path(input_path).read_bytes())
     b, g = scenario.building, scenario.group
     rules = default_rules()
     traffic = scenario.traffic or Traffic(12.0)
@@ -143,10 +149,11 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
                                                     passengers_per_car=mc.passengers_per_trip))
     stages(f"round-trip bounds: demand sweep, {SWEEP_POINTS} points")
     sweep = demand_sweep(job, demand_points(demand), rules, max_trials=sweep_cap,
-                         quiet=quiet, **run)
+                         quiet=quiet, ex=ex, building_file_sha256=digest, **run)
     stages(f"round-trip bounds: cars open to allocation, 1 to {g.cars}")
     opens = demand_sweep(job, [demand], rules, cars_open_list=list(range(1, g.cars + 1)),
-                         max_trials=sweep_cap, quiet=quiet, **run)
+                         max_trials=sweep_cap, quiet=quiet, ex=ex,
+                         building_file_sha256=digest, **run)
     bounds = _bounds_from_sweep(opens, BOUND_RULE, g.cars)
 
     decision = study = service = None
@@ -159,9 +166,10 @@ def _run_job(scenario, input_path, out_dir, worker, *, seed, ci_target_pct, tria
                f"(conventional and {dc})")
         decision = decide(job, dc, criterion, study=study if dc in
                           [r.control.name for r in study.runs] else None, bounds=bounds,
-                          seed=seed, threads=threads)
+                          seed=seed, threads=threads, ex=ex, building_file_sha256=digest)
         stages("sizing on the service criterion (peak simulation)")
-        service = size_by_service(job, dc, criterion, **sizing_candidates(g), seed=seed)
+        service = size_by_service(job, dc, criterion, **sizing_candidates(g), seed=seed, ex=ex,
+                                  building_file_sha256=digest)
 
     stages("charts and the report")
     at_demand = {r["rule"]: r for r in comparison.to_dict()["rules"]}

@@ -73,59 +73,87 @@ def candidates(cars_list, loads, speeds, cost_weight: float | None = None):
     return installation_order(cars_list, loads, speeds, cost_weight)
 
 
-def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, speeds, *,
-               cars_open: int | None = None, poisson: bool = True, trials=None,
-               ci_target_pct: float = 0.5, max_trials: int = 1_000_000, seed: int = 0,
-               threads=None, on_candidate=None) -> dict:
-    """Search the candidates; returns {"designs": [...], "tried": [...], "savings": [...],
-    "criteria": {...}, "cars_open": K}.
-
-    Every candidate runs all rules still without a design, on common rounds, with
-    min(K, cars) cars open to allocation (K = ``cars_open``, default
-    :data:`DEFAULT_CARS_OPEN`); the search stops as soon as every rule has one. An
-    adaptive run stops at ``max_trials`` or at the run limits
-    (:func:`experiments.limits.trial_cap`).
-    """
-    from allocation.registry import baseline_rule
+def _screen_task(scenario: Scenario, group, rules, demand, cars_open: int, poisson: bool,
+                 trials, ci_target_pct: float, max_trials: int, seed: int, threads) -> dict:
+    """One candidate of the round-trip screen: every rule at the design load and at the load
+    the demand sets, on common rounds."""
     from batchrounds.montecarlo import compare_rules
-    from roundtrip.building import Traffic
     from roundtrip.classical import design_passengers
     from roundtrip.montecarlo import simulate_demand
 
-    from .basis import round_trip_basis
     from .limits import trial_cap
+    cap = trial_cap(max_trials, cars=group.cars, rules=len(rules),
+                    passengers_per_car=group.design_load_persons)
+    run = dict(cars_open=cars_open, traffic=scenario.traffic, poisson=poisson, trials=trials,
+               ci_target_pct=ci_target_pct, max_trials=cap, seed=seed, threads=threads)
+    design = compare_rules(scenario.building, group, rules,
+                           design_passengers(scenario.building, group, scenario.traffic), **run)
+    conventional = simulate_demand(scenario.building, group, demand, poisson=poisson,
+                                   trials=trials, ci_target_pct=ci_target_pct,
+                                   max_trials=trial_cap(max_trials,
+                                                        passengers_per_car=group.design_load_persons),
+                                   seed=seed, threads=threads)
+    at_demand = compare_rules(scenario.building, group, rules,
+                              conventional.passengers_per_trip, **run)
+    return {"design": design.to_dict()["rules"], "at_demand": at_demand.to_dict()["rules"],
+            "passengers_per_trip": conventional.passengers_per_trip}
+
+
+def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, speeds, *,
+               cars_open: int | None = None, poisson: bool = True, trials=None,
+               ci_target_pct: float = 0.5, max_trials: int = 1_000_000, seed: int = 0,
+               threads=None, on_candidate=None, ex=None,
+               building_file_sha256: str = "") -> dict:
+    """Search the candidates; returns {"designs": [...], "tried": [...], "savings": [...],
+    "criteria": {...}, "cars_open": K}.
+
+    Every candidate runs all rules on common rounds (one task, :mod:`experiments.tasks`),
+    with min(K, cars) cars open to allocation (K = ``cars_open``, default
+    :data:`DEFAULT_CARS_OPEN`); a rule is listed as tried at each candidate up to its
+    design, and the search stops as soon as every rule has one. Every candidate draws from
+    one stream, ``task_seed(seed, ("size", "round-trip", building, digest))`` (common
+    random numbers across the candidates). On a cluster (``ex``) candidates run a few
+    ahead; the answer and the list tried are the same. An adaptive run stops at
+    ``max_trials`` or at the run limits (:func:`experiments.limits.trial_cap`).
+    """
+    from allocation.registry import baseline_rule
+    from roundtrip.building import Traffic
+
+    from .basis import round_trip_basis
+    from .tasks import InProcess, Task, ordered_search, task_seed
 
     K = DEFAULT_CARS_OPEN if cars_open is None else int(cars_open)
     if K < 1:
         raise ValueError(f"cars_open = {cars_open!r}: must be a whole number >= 1")
+    ex = InProcess(threads) if ex is None else ex
+    threads = ex.threads if ex.threads is not None else threads
 
     base = scenario.traffic or Traffic(criteria.hc_min_pct)
     demand = replace(base, arrival_rate_pct_5min=criteria.hc_min_pct)
     wanted = list(dict.fromkeys([baseline_rule(), *rules]))
+    name = scenario.building.name
+    stream_seed = task_seed(seed, ("size", "round-trip", name, building_file_sha256))
+    order = candidates(cars_list, loads, speeds)
     found: dict[str, dict] = {}
     tried = []
-    for cars, load, speed in candidates(cars_list, loads, speeds):
-        open_rules = [r for r in wanted if r not in found]
-        if not open_rules:
-            break
+
+    def make_task(i):
+        cars, load, speed = order[i]
         group = replace(scenario.group, cars=cars, rated_load_persons=load, rated_speed_mps=speed)
-        cap = trial_cap(max_trials, cars=cars, rules=len(open_rules),
-                        passengers_per_car=group.design_load_persons)
-        run = dict(cars_open=min(K, cars), traffic=scenario.traffic, poisson=poisson,
-                   trials=trials, ci_target_pct=ci_target_pct, max_trials=cap, seed=seed,
-                   threads=threads)
-        design = compare_rules(scenario.building, group, open_rules,
-                               design_passengers(scenario.building, group, scenario.traffic),
-                               **run)
-        conventional = simulate_demand(scenario.building, group, demand, poisson=poisson,
-                                       trials=trials, ci_target_pct=ci_target_pct,
-                                       max_trials=trial_cap(max_trials,
-                                                            passengers_per_car=group.design_load_persons),
-                                       seed=seed, threads=threads)
-        at_demand = compare_rules(scenario.building, group, open_rules,
-                                  conventional.passengers_per_trip, **run)
-        busy = {r["rule"]: r for r in at_demand.to_dict()["rules"]}
-        for r in design.to_dict()["rules"]:
+        return Task(("size", "round-trip", name, building_file_sha256, f"{cars} cars",
+                     f"{load} persons", f"{speed:g} mps"), _screen_task,
+                    dict(scenario=scenario, group=group, rules=wanted, demand=demand,
+                         cars_open=min(K, cars), poisson=poisson, trials=trials,
+                         ci_target_pct=ci_target_pct, max_trials=max_trials, seed=stream_seed,
+                         threads=threads))
+
+    def take(i, result):
+        cars, load, speed = order[i]
+        open_rules = [r for r in wanted if r not in found]
+        busy = {r["rule"]: r for r in result["at_demand"]}
+        for r in result["design"]:
+            if r["rule"] not in open_rules:
+                continue
             d = busy[r["rule"]]
             ok = (d["interval_s"] <= criteria.interval_max_s
                   and r["handling_capacity_pct_5min"] >= criteria.hc_min_pct)
@@ -135,17 +163,18 @@ def size_group(scenario: Scenario, rules, criteria: Criteria, cars_list, loads, 
                      "rated_load_persons": load,
                      "rated_speed_mps": speed, "interval_s": d["interval_s"],
                      "interval_at_design_load_s": r["interval_s"],
-                     "passengers_per_trip_at_demand": conventional.passengers_per_trip,
+                     "passengers_per_trip_at_demand": result["passengers_per_trip"],
                      "handling_capacity_pct_5min": r["handling_capacity_pct_5min"],
                      "handling_capacity_ci95_pct": r["handling_capacity_pct_5min"]
                      * r["ci95_s"] / r["round_trip_time_s"],
                      "round_trip_time_s": r["round_trip_time_s"], "ci95_s": r["ci95_s"],
                      "meets_criteria": ok}
             tried.append(entry)
-            if ok and r["rule"] in open_rules:
+            if ok:
                 found[r["rule"]] = {**entry, "found": True}
-        if on_candidate is not None:
-            on_candidate()
+        return all(r in found for r in wanted)
+
+    ordered_search(ex, len(order), make_task, take, on_candidate)
     designs = []
     for rule in wanted:
         if rule in found:
@@ -255,10 +284,45 @@ def installation_order(cars_list, loads, speeds, cost_weight: float | None = Non
                   key=lambda x: (x[0], size(x[1], x[2]), x[1], x[2]))
 
 
+def _service_task(scenario: Scenario, group, destination_control: str, criterion, *,
+                  window_s: float, minutes: float, replications: int, seed: int,
+                  peak_if_filtered: bool, threads=None) -> dict:
+    """One candidate of the peak sizing: the round-trip filter's most handling capacity
+    [% / 5 min], then (unless the filter fails and ``peak_if_filtered`` is False) the peak
+    simulation of conventional control and the destination control on the same arrivals."""
+    from peak.simulation import simulate_peak
+    from roundtrip.montecarlo import simulate_trips
+
+    from .decision import meets
+    cars = group.cars
+    mc = simulate_trips(scenario.building, group, group.departure_load_persons,
+                        traffic=scenario.traffic, poisson=False, trials=4000, seed=seed)
+    most = (100 * 300 * mc.passengers_carried.mean * cars / mc.round_trip_time.mean
+            / scenario.building.total_population)
+    if most < scenario.traffic.arrival_rate_pct_5min and not peak_if_filtered:
+        return {"most": most, "runs": None}
+    study = simulate_peak(scenario.building, group, scenario.traffic, [destination_control],
+                          window_s=window_s, minutes=minutes, replications=replications,
+                          seed=seed, slots=False, threads=threads)
+    runs = []
+    for run in study.runs:
+        ok, why = meets(run, study.runs[0], criterion)
+        s = run.summary
+        runs.append({"control": run.control.name, "meets_criterion": ok, "why": why,
+                     "basis": "peak",
+                     "average_waiting_time_s": s["average_waiting_time_s"].mean,
+                     "average_waiting_time_ci95_s": s["average_waiting_time_s"].ci95,
+                     "waiting_time_p95_s": s["waiting_time_p95_s"].mean,
+                     "average_time_to_destination_s": s["average_time_to_destination_s"].mean,
+                     "handling_capacity_pct_5min": s["handling_capacity_pct_5min"].mean})
+    return {"most": most, "runs": runs}
+
+
 def size_by_service(scenario: Scenario, destination_control: str, criterion, cars_list, loads,
                     speeds, *, seed: int = 0, replications: int = 10, window_s: float = 5.0,
                     minutes: float = 60.0, scale_times: bool | None = None,
-                    cost_weight: float | None = None, on_candidate=None) -> dict:
+                    cost_weight: float | None = None, on_candidate=None, ex=None,
+                    building_file_sha256: str = "") -> dict:
     """The cheapest group meeting the service criterion under each control, by the peak
     simulation (:mod:`experiments.decision`).
 
@@ -270,57 +334,62 @@ def size_by_service(scenario: Scenario, destination_control: str, criterion, car
     round-trip Monte Carlo's handling capacity of conventional control at the departure
     load (its most, lobby never empty) below the demand fails conventional control there.
 
+    Each candidate is one task (:mod:`experiments.tasks`); every candidate draws from one
+    stream, ``task_seed(seed, ("size", "peak", building, digest))``, so that each meets
+    the same arrivals (common random numbers across the candidates). On a cluster (``ex``)
+    candidates run a few ahead; the answer and the list tried are the same.
+
     Returns ``{"designs": [...], "tried": [...], "savings": [...], "criterion": ...}``;
     a control without a design says so (``found: false`` and a message).
     """
-    from peak.simulation import simulate_peak
-    from roundtrip.montecarlo import simulate_trips
-
-    from .decision import meets
+    from .tasks import InProcess, Task, ordered_search, task_seed
     if scale_times is None:
         scale_times = scenario.group.times_scale_with_car_size
+    ex = InProcess() if ex is None else ex
+    threads = ex.threads               # one per worker on a cluster; results do not depend on it
     names = ["conventional", destination_control]
     demand = scenario.traffic.arrival_rate_pct_5min
+    name = scenario.building.name
+    stream_seed = task_seed(seed, ("size", "peak", name, building_file_sha256))
+    order = installation_order(cars_list, loads, speeds, cost_weight)
     found: dict = {}
     tried = []
-    for cars, load, speed in installation_order(cars_list, loads, speeds, cost_weight):
-        if all(n in found for n in names):
-            break
+
+    def make_task(i):
+        cars, load, speed = order[i]
+        group = candidate_group(scenario.group, cars, load, speed, scale_times)
+        # the simulation may be spared after a failed filter only while conventional
+        # control is without a design and the destination control has one
+        spare = "conventional" not in found and destination_control in found
+        return Task(("size", "peak", name, building_file_sha256, f"{cars} cars",
+                     f"{load} persons", f"{speed:g} mps"), _service_task,
+                    dict(scenario=scenario, group=group, destination_control=destination_control,
+                         criterion=criterion, window_s=window_s, minutes=minutes,
+                         replications=replications, seed=stream_seed,
+                         peak_if_filtered=not spare, threads=threads))
+
+    def take(i, result):
+        cars, load, speed = order[i]
         group = candidate_group(scenario.group, cars, load, speed, scale_times)
         open_names = [n for n in names if n not in found]
         base = {"cars": cars, "rated_load_persons": load, "rated_speed_mps": speed,
                 "door_open_s": group.door_open_s, "door_close_s": group.door_close_s,
                 "transfer_in_s": group.transfer_in_s, "transfer_out_s": group.transfer_out_s}
-        mc = simulate_trips(scenario.building, group, group.departure_load_persons,
-                            traffic=scenario.traffic, poisson=False, trials=4000, seed=seed)
-        most = (100 * 300 * mc.passengers_carried.mean * cars / mc.round_trip_time.mean
-                / scenario.building.total_population)
+        most = result["most"]
         if most < demand and "conventional" in open_names:
             tried.append({**base, "control": "conventional", "meets_criterion": False,
                           "why": [f"round trip carries at most {most:.1f} %"], "basis": "round-trip"})
             open_names = [n for n in open_names if n != "conventional"]
             if not open_names:
-                if on_candidate is not None:
-                    on_candidate()
-                continue
-        study = simulate_peak(scenario.building, group, scenario.traffic,
-                              [destination_control], window_s=window_s, minutes=minutes,
-                              replications=replications, seed=seed, slots=False)
-        for run in study.runs:
-            name = run.control.name
-            ok, why = meets(run, study.runs[0], criterion)
-            s = run.summary
-            entry = {**base, "control": name, "meets_criterion": ok, "why": why, "basis": "peak",
-                     "average_waiting_time_s": s["average_waiting_time_s"].mean,
-                     "average_waiting_time_ci95_s": s["average_waiting_time_s"].ci95,
-                     "waiting_time_p95_s": s["waiting_time_p95_s"].mean,
-                     "average_time_to_destination_s": s["average_time_to_destination_s"].mean,
-                     "handling_capacity_pct_5min": s["handling_capacity_pct_5min"].mean}
+                return False
+        for run in result["runs"]:
+            entry = {**base, **run}
             tried.append(entry)
-            if ok and name in open_names:
-                found[name] = {**entry, "found": True}
-        if on_candidate is not None:
-            on_candidate()
+            if run["meets_criterion"] and run["control"] in open_names:
+                found[run["control"]] = {**entry, "found": True}
+        return all(n in found for n in names)
+
+    ordered_search(ex, len(order), make_task, take, on_candidate)
     designs = []
     for name in names:
         if name in found:

@@ -163,7 +163,9 @@ GOOD_BAD = {
                                  "/dev/zero"]),
 }
 GENERIC = (["1", "2"], ["0", "-1", "x", "", "nan", "1e300"])
-SKIP = {"-h", "--help", "--version", "--debug"}
+# --workers and --scheduler start or reach a Dask cluster (seconds per example): their
+# refusals are checked in tests/test_tasks.py, their runs in tests/test_cluster.py.
+SKIP = {"-h", "--help", "--version", "--debug", "--workers", "--scheduler"}
 
 
 def _actions(parser):

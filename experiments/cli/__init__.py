@@ -48,6 +48,28 @@ def _add_file(p: argparse.ArgumentParser) -> None:
     p.add_argument("file", metavar="FILE", help="building input file (TOML); see README.md")
 
 
+def _add_files(p: argparse.ArgumentParser) -> None:
+    p.add_argument("file", metavar="FILE", nargs="+",
+                   help="building input file(s) (TOML); see README.md. With several, one run "
+                        "covers them all and every table names the building and its file's "
+                        "digest")
+
+
+def _add_cluster(p: argparse.ArgumentParser) -> None:
+    """Where the study's tasks run (see experiments/tasks.py); in this process by default."""
+    from .options import workers_type
+    where = p.add_mutually_exclusive_group()
+    where.add_argument("--workers", metavar="N", type=workers_type,
+                       help="run the study's tasks on a local Dask cluster of N worker "
+                            "processes (1 ... 256; needs pip install 'liftsort[cluster]'); "
+                            "the result is the same as in this process")
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="run the study's tasks on a running Dask scheduler, e.g. "
+                            "tcp://HOST:8786 (workers started with `dask worker ADDRESS`, the "
+                            "same liftsort version on each); the result is the same as in this "
+                            "process")
+
+
 def _add_json(p: argparse.ArgumentParser) -> None:
     p.add_argument("--json", action="store_true",
                    help="print exactly one JSON object on stdout instead of a table")
@@ -171,7 +193,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
         description="Sweep the demand (and optionally cars and cars open to allocation) and "
                     "compare the rules at every point on common passengers. Writes sweep.csv "
                     "and the charts into --out.")
-    _add_file(sw)
+    _add_files(sw)
     sw.add_argument("--arrival", metavar="A:B:STEP", required=True,
                     help="demand points [%% of population per 5 min], START:STOP:STEP (STOP "
                          "included) or a comma list, e.g. 6:20:1")
@@ -187,6 +209,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     sw.add_argument("--no-charts", action="store_true", help="write the CSV only")
     sw.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(sw)
+    _add_cluster(sw)
     _add_json(sw)
     sw.set_defaults(handler="experiments.cli.sweep")
 
@@ -203,7 +226,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     "round-trip screen: interval <= 30 s at the demand and handling capacity "
                     ">= the demand (or 12 %) at design load, per rule (common office practice, "
                     "CIBSE Guide D). Up-peak traffic for the peak sizing.")
-    _add_file(sz)
+    _add_files(sz)
     sz.add_argument("--interval-max", metavar="S", type=interval_type,
                     help="largest acceptable interval at the load the demand (--hc-min) sets "
                          "[s] (default 30)")
@@ -234,7 +257,11 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
                     help="peak-simulation replications per candidate and control (default 10)")
     sz.add_argument("--round-trip-only", action="store_true",
                     help="skip the peak sizing: the round-trip screen only (a bound)")
+    sz.add_argument("--out", metavar="DIR",
+                    help="also write the candidates tried as tidy tables (sizing_peak.csv, "
+                         "sizing_round_trip.csv) and the whole result (sizing.json) into DIR")
     _add_run_options(sz)
+    _add_cluster(sz)
     _add_decision_options(sz)
     _add_json(sz)
     sz.set_defaults(handler="experiments.cli.size")
@@ -291,6 +318,7 @@ def build_parser(default_rule_names: str | None = None) -> argparse.ArgumentPars
     rep.add_argument("--out", metavar="DIR", required=True, help="output folder")
     rep.add_argument("--quiet", action="store_true", help="no progress bar")
     _add_run_options(rep)
+    _add_cluster(rep)
     _add_decision_options(rep)
     _add_json(rep)
     rep.set_defaults(handler="experiments.cli.report")
@@ -366,7 +394,10 @@ def _main(argv: list[str]) -> int:
             _ON_EXIT.append(caches.remove)
             if caches.note:
                 print(caches.note, file=sys.stderr)
-        scenario = load_scenario(args.file) if args.file is not None else None
+        if isinstance(args.file, list):             # commands that take several files
+            scenario = [load_scenario(f) for f in args.file]
+        else:
+            scenario = load_scenario(args.file) if args.file is not None else None
         module = importlib.import_module(args.handler)
         return module.run(args, scenario)
     except bad_input as exc:
@@ -387,6 +418,12 @@ def _main(argv: list[str]) -> int:
         _say(command, f"error: {where}{_shown(exc.strerror or exc)}.")
         return EXIT_BAD_INPUT
     except Exception as exc:                      # a bug: say so briefly, ask for a report
+        tasks = sys.modules.get("experiments.tasks")
+        if tasks is not None and isinstance(exc, tasks.TaskFailed):
+            if debug:
+                traceback.print_exception(exc.error)
+            _say(command, f"error: {_shown(exc)}. No output was written.")
+            return EXIT_BUG
         if debug:
             traceback.print_exc()
         hint = "" if debug else " (run it again with --debug to see the traceback)"

@@ -64,6 +64,7 @@ trials_type = whole(2, f"N must be a whole number of trials from 2 to {MAX_KEPT_
 max_trials_type = whole(2, "N must be a whole number of trials >= 2")
 ci_type = number(0.0, True, "PCT must be a percentage > 0 and at most 100", high=100.0)
 seed_type = whole(0, "S must be a whole number from 0 to 2^64 - 1", high=2 ** 64 - 1)
+workers_type = whole(1, "N must be a whole number of worker processes from 1 to 256", high=256)
 threads_type = whole(1, "T must be a whole number of threads from 1 to 1024", high=1024)
 cars_open_type = whole(1, f"K must be a whole number of cars from 1 to {CARS.high:g}",
                        high=int(CARS.high))
@@ -234,3 +235,19 @@ def target_note(args, widest_pct: float, trials: int) -> str | None:
     return (f"The run stopped at {trials:,} trials (--max-trials or the memory limit) with a "
             f"95 % half-width of up to {widest_pct:.2g} % of the round-trip time, short of "
             f"--ci-target {args.ci_target:g}.")
+
+
+def building_digests(files) -> list[str]:
+    """The digest of each building file (:func:`experiments.tasks.file_digest`), checked to
+    name each building once: the same file given twice would be the same units twice."""
+    from pathlib import Path
+
+    from experiments.tasks import file_digest
+    digests = [file_digest(Path(f).read_bytes()) for f in files]
+    seen: dict[str, str] = {}
+    for f, d in zip(files, digests):
+        if d in seen:
+            raise InputError([f"FILE {_shown(f)}: has the same contents as {_shown(seen[d])} "
+                              f"(SHA-256 {d}...); give each building once."])
+        seen[d] = f
+    return digests

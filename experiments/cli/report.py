@@ -100,11 +100,14 @@ def run(args, scenario: Scenario) -> int:
     stages(f"liftsort report: {scenario.building.name}")
     from experiments.report_job import run_job
     check_job_trials(args.trials, scenario)
-    with output_set(args.out, command="report") as outs:
+    from experiments.tasks import executor
+    with output_set(args.out, command="report") as outs, \
+            executor(args.workers, args.scheduler, args.threads) as ex:
         result = published(run_job(scenario, args.file, outs.folder, seed=args.seed,
                                    ci_target_pct=args.ci_target, trials=args.trials,
                                    max_trials=args.max_trials, quiet=args.quiet or args.json,
-                                   threads=args.threads, stages=stages, **job_options(args)),
+                                   threads=args.threads, stages=stages, ex=ex,
+                                   **job_options(args)),
                            outs)
     if args.json:
         print(dumps(result))

@@ -1,6 +1,10 @@
 """`liftsort size`: the cheapest group meeting the service criterion under each control
-(peak simulation), and the round-trip screen per rule beside it, as a bound."""
+(peak simulation), and the round-trip screen per rule beside it, as a bound; for one
+building file or several, in this process or on a Dask cluster (--workers, --scheduler),
+with the candidates tried as tidy tables (--out)."""
 from __future__ import annotations
+
+import contextlib
 
 from roundtrip.building import Scenario
 
@@ -8,8 +12,8 @@ from experiments.progress import progress_bar
 from experiments.sizing import default_criteria, size_group
 from experiments.wording import CAUTION, client_name
 
-from .options import (CARS, LOADS, SPEEDS, check_rules_fit, check_runs, check_trials,
-                      parse_range, parse_rules)
+from .options import (CARS, LOADS, SPEEDS, building_digests, check_rules_fit, check_runs,
+                      check_trials, parse_range, parse_rules)
 from .tables import dumps, grid_table
 
 
@@ -31,7 +35,8 @@ def sizing_plan(scenario: Scenario, args) -> dict:
     return dict(cars=cars, loads=loads, speeds=speeds, rules=rules)
 
 
-def service_sizing(scenario: Scenario, args, plan: dict) -> dict | None:
+def service_sizing(scenario: Scenario, args, plan: dict, ex=None,
+                   digest: str = "") -> dict | None:
     """The peak sizing (None with --round-trip-only; a note when the traffic is not
     up-peak, which the peak simulation does not model)."""
     from allocation.registry import headline_control
@@ -58,21 +63,24 @@ def service_sizing(scenario: Scenario, args, plan: dict) -> dict | None:
         return size_by_service(replace(scenario, traffic=traffic), dc, criterion, plan["cars"],
                                plan["loads"], plan["speeds"], seed=args.seed,
                                replications=args.replications, cost_weight=args.cost_weight,
-                               on_candidate=bar.update)
+                               on_candidate=bar.update, ex=ex, building_file_sha256=digest)
 
 
-def sizing(scenario: Scenario, args) -> dict:
-    plan = sizing_plan(scenario, args)
+def sizing(scenario: Scenario, args, plan: dict | None = None, ex=None,
+           digest: str = "") -> dict:
+    """Both searches for one building, their tasks run on the executor ``ex`` (default: in
+    process)."""
+    plan = sizing_plan(scenario, args) if plan is None else plan
     criteria = default_criteria(scenario, args.interval_max, args.hc_min)
-    service = service_sizing(scenario, args, plan)
+    service = service_sizing(scenario, args, plan, ex, digest)
     total = len(plan["cars"]) * len(plan["loads"]) * len(plan["speeds"])
     with progress_bar(total, args.quiet or args.json, "sizing, round-trip screen") as bar:
         result = size_group(scenario, plan["rules"], criteria, plan["cars"], plan["loads"],
                             plan["speeds"], cars_open=args.cars_open, poisson=not args.fixed,
                             trials=args.trials, ci_target_pct=args.ci_target,
                             max_trials=args.max_trials, seed=args.seed, threads=args.threads,
-                            on_candidate=bar.update)
-    out = {"building": scenario.building.name, **result}
+                            on_candidate=bar.update, ex=ex, building_file_sha256=digest)
+    out = {"building": scenario.building.name, "building_file_sha256": digest, **result}
     if service is not None:
         out["service"] = {k: v for k, v in service.items() if k != "tried"}
         out["service_tried"] = service.get("tried", [])
@@ -112,14 +120,73 @@ def _print_service(s: dict) -> None:
             print(f"- {client_name(x['control'], with_key=False)}: {x['message']}")
 
 
-def run(args, scenario: Scenario) -> int:
-    d = sizing(scenario, args)
+def _same(entry: dict, design: dict, name: str) -> bool:
+    return design.get("found") and all(entry.get(k) == design.get(k) for k in
+                                       (name, "cars", "rated_load_persons", "rated_speed_mps",
+                                        "basis"))
+
+
+def tried_tables(results: list[dict]):
+    """The candidates tried, as two tidy tables (pandas DataFrames): the peak sizing's
+    (one row per candidate and control) and the round-trip screen's (one row per candidate
+    and rule), each row with its building, its file's digest and whether it is the
+    design chosen."""
+    import pandas as pd
+    peak, screen = [], []
+    for d in results:
+        where = {"building": d["building"], "building_file_sha256": d["building_file_sha256"]}
+        designs = d.get("service", {}).get("designs", [])
+        for x in d.get("service_tried", []):
+            peak.append({**where, **x, "why": "; ".join(x.get("why", [])),
+                         "chosen": any(_same(x, y, "control") for y in designs)})
+        for x in d["tried"]:
+            screen.append({**where, **x,
+                           "chosen": any(_same(x, y, "rule") for y in d["designs"])})
+    return pd.DataFrame(peak), pd.DataFrame(screen)
+
+
+def run(args, scenario) -> int:
+    from experiments.outputs import output_set, write_atomic
+    from experiments.tasks import executor
+    scenarios = list(scenario) if isinstance(scenario, (list, tuple)) else [scenario]
+    files = args.file if isinstance(args.file, list) else [args.file]
+    digests = building_digests(files)
+    plans = [sizing_plan(s, args) for s in scenarios]
+    written = []
+    outs_cm = output_set(args.out, command="size") if args.out else contextlib.nullcontext()
+    with outs_cm as outs:
+        with executor(args.workers, args.scheduler, args.threads) as ex:
+            results = [sizing(s, args, p, ex, d)
+                       for s, p, d in zip(scenarios, plans, digests)]
+        if outs is not None:
+            peak, screen = tried_tables(results)
+            whole = results[0] if len(results) == 1 else {"buildings": results}
+            files = [("sizing_peak.csv", peak), ("sizing_round_trip.csv", screen)]
+            for name, text in [(n, t.to_csv(index=False)) for n, t in files if len(t)] + [
+                    ("sizing.json", dumps(whole))]:
+                written.append(outs.final_path(write_atomic(outs.folder / name, text)))
     if args.json:
-        out = dict(d)
-        out.pop("tried")
-        out.pop("service_tried", None)
-        print(dumps(out))
+        shown = []
+        for d in results:
+            out = dict(d)
+            out.pop("tried")
+            out.pop("service_tried", None)
+            shown.append(out)
+        print(dumps(shown[0] if len(shown) == 1 else {"buildings": shown}))
         return 0
+    for i, d in enumerate(results):
+        if i:
+            print()
+        if len(results) > 1:
+            print(f"=== {d['building']} (file SHA-256 {d['building_file_sha256']}...)")
+        _print_building(d, args)
+    for p in written:
+        print(f"wrote {p}")
+    print("\n" + CAUTION)
+    return 0
+
+
+def _print_building(d: dict, args) -> None:
     if "service" in d:
         _print_service(d["service"])
         print()
@@ -141,5 +208,3 @@ def run(args, scenario: Scenario) -> int:
     for x in d["designs"]:
         if not x["found"]:
             print(f"- {x['rule']}: {x['message']}")
-    print("\n" + CAUTION)
-    return 0

@@ -502,7 +502,18 @@ class Decision:
                     text += (f": destination control is worth specifying, it saves "
                              f"{count_of(cars_saved, 'car')}.")
                 elif cars_saved == 0:
-                    text += ": the same number of cars either way."
+                    saving = (sizing or {}).get("savings") or {}
+                    smaller = (saving.get("installation_destination") is not None
+                               and saving["installation_destination"]
+                               < saving["installation_conventional"])
+                    if smaller:
+                        text += (": the same number of cars, and destination control's are a "
+                                 f"smaller installation ({sizing['cost_order'].split(', then ')[-1]}"
+                                 f" {saving['installation_destination']:g} against "
+                                 f"{saving['installation_conventional']:g}), a saving to weigh "
+                                 "against the cost of destination control.")
+                    else:
+                        text += ": the same number of cars either way."
                 else:
                     text += ": destination control needs more cars here."
             elif sizing is not None:

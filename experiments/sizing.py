@@ -274,14 +274,20 @@ def neighbours(value, standard) -> list:
     return sorted({value, *below[-1:], *above[:1]})
 
 
+def installation_size(rated_load_persons: float, rated_speed_mps: float,
+                      cost_weight: float | None = None) -> float:
+    """The size of one car's installation in the sizing's cost order: rated load x rated
+    speed [persons m/s], or with a ``cost_weight`` w, rated load + w x rated speed."""
+    if cost_weight is None:
+        return rated_load_persons * rated_speed_mps
+    return rated_load_persons + cost_weight * rated_speed_mps
+
+
 def installation_order(cars_list, loads, speeds, cost_weight: float | None = None):
     """(cars, rated load, rated speed) in the order a client pays for them: fewest cars,
-    then the smaller installation, rated load x rated speed [persons m/s] (or, with a
-    ``cost_weight`` w, rated load + w x rated speed), then the smaller car."""
-    def size(q, v):
-        return q * v if cost_weight is None else q + cost_weight * v
+    then the smaller installation (:func:`installation_size`), then the smaller car."""
     return sorted(((c, q, v) for c in cars_list for q in loads for v in speeds),
-                  key=lambda x: (x[0], size(x[1], x[2]), x[1], x[2]))
+                  key=lambda x: (x[0], installation_size(x[1], x[2], cost_weight), x[1], x[2]))
 
 
 def _service_task(scenario: Scenario, group, destination_control: str, criterion, *,
@@ -402,8 +408,12 @@ def size_by_service(scenario: Scenario, destination_control: str, criterion, car
     conv, dc = designs
     savings = None
     if conv["found"] and dc["found"]:
-        savings = {"cars_saved": conv["cars"] - dc["cars"], "basis": "peak"}
+        size = (lambda d: installation_size(d["rated_load_persons"], d["rated_speed_mps"],
+                                            cost_weight))
+        savings = {"cars_saved": conv["cars"] - dc["cars"], "basis": "peak",
+                   "installation_conventional": size(conv), "installation_destination": size(dc)}
     return {"criterion": criterion.to_dict(), "demand_pct_5min": demand, "designs": designs,
             "tried": tried, "savings": savings, "times_scale_with_car_size": scale_times,
             "cost_order": ("cars, then rated load x speed" if cost_weight is None
-                           else f"cars, then rated load + {cost_weight:g} x speed")}
+                           else f"cars, then rated load + {cost_weight:g} x speed"),
+            "cost_weight": cost_weight}

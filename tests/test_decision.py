@@ -289,6 +289,20 @@ def test_verdict_claims_a_saving_only_from_the_peak_sizing():
     sizing["designs"][1]["cars"] = 5
     v = d.verdict(sizing)
     assert not v["worth_specifying"] and v["cars_saved"] == 0 and "saves" not in v["text"]
+    assert "the same number of cars either way" in v["text"]
+    # the same cars, destination control's smaller (16 x 2.0 = 32 against 17 x 2.5 = 42.5
+    # persons m/s): said as an installation saving, not as a reason on its own
+    sizing = {"designs": [{"control": "conventional", "found": True, "cars": 6,
+                           "rated_load_persons": 17, "rated_speed_mps": 2.5},
+                          {"control": DC, "found": True, "cars": 6, "rated_load_persons": 16,
+                           "rated_speed_mps": 2.0}],
+              "savings": {"cars_saved": 0, "basis": "peak", "installation_conventional": 42.5,
+                          "installation_destination": 32.0},
+              "cost_order": "cars, then rated load x speed"}
+    v = d.verdict(sizing)
+    assert not v["worth_specifying"] and v["cars_saved"] == 0
+    assert ("the same number of cars, and destination control's are a smaller installation "
+            "(rated load x speed 32 against 42.5)") in v["text"]
     for conv, dc, word in ((12.4, 13.0, "not needed"), (11.0, 12.6, "worth specifying")):
         caps = (CapacityAtCriterion("conventional", conv, crit, False),
                 CapacityAtCriterion(DC, dc, crit, False))

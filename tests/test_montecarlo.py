@@ -558,6 +558,25 @@ def test_bad_arguments_are_refused():
         simulate_trips(b, SLOW_GROUP, 5, ci_target_pct=0)
     with pytest.raises(ValueError, match="interfloor"):
         od_matrix(Building("one", (3.0,), (10.0,)), Traffic(5.0, 0.0, 0.0, 1.0))
+    for kwargs, message in (({"max_trials": 1}, "max_trials = 1: must be a whole number >= 2"),
+                            ({"trials": 1}, "trials = 1: must be a whole number >= 2"),
+                            ({"threads": 0}, "threads = 0: must be a whole number >= 1")):
+        with pytest.raises(ValueError, match=message):
+            simulate_trips(b, SLOW_GROUP, 5, **kwargs)
+
+
+@pytest.mark.parametrize("poisson", [True, False])
+def test_a_part_of_the_stream_is_the_same_drawn_into_a_reused_buffer(poisson):
+    # The stream's definition (roundtrip/stream.py): a part's counts and uniforms come from
+    # its own generator; drawing them into a reused buffer changes nothing.
+    from roundtrip.stream import Buffer, count_table, draw_part
+    counts = count_table(6.3, poisson)
+    fresh = draw_part(11, 2, 1, 500, counts)
+    buffer = Buffer()
+    draw_part(11, 0, 0, 900, counts, buffer)            # the buffer has been used before
+    reused = draw_part(11, 2, 1, 500, counts, buffer)
+    np.testing.assert_array_equal(fresh.offsets, reused.offsets)
+    np.testing.assert_array_equal(fresh.uniforms, reused.uniforms)
 
 
 def test_simulate_command_json_keys_and_errors(tmp_path, capsys):

@@ -66,3 +66,21 @@ def test_every_destination_figure_carries_its_basis_and_conventional_none(screen
         assert s["saving"].startswith(f"{s['rule']} ({basis})")
         if s["cars_saved"] == 0:
             assert "saves" not in s["saving"]
+
+
+def test_a_group_the_round_trip_cannot_carry_is_listed_as_failing_and_why(tmp_path):
+    # Three cars of the demo building carry at most about 6 % in the round trip, half the
+    # 12 % demand: the peak sizing's first filter rejects them and says so in the table.
+    from importlib.resources import files
+    demo = str(files("experiments.data") / "demo_building.toml")
+    folder = tmp_path / "set"
+    assert main(["size", demo, "--cars", "3:3", "--replications", "2", "--quiet",
+                 "--out", str(folder)]) == 0
+    with open(folder / "sizing_peak.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    screened = [r for r in rows if r["basis"] == "round-trip"]
+    assert [r["control"] for r in screened] == ["conventional"]
+    assert screened[0]["meets_criterion"] == "False" and screened[0]["chosen"] == "False"
+    assert screened[0]["why"].startswith("round trip carries at most ")
+    assert all(r["chosen"] == "False" for r in rows)          # nothing met the criterion
+    assert all(r["meets_criterion"] == "False" for r in rows)

@@ -398,7 +398,7 @@ def design_passengers(building: Building, group: LiftGroup, traffic: Traffic | N
 
 
 def demand_passengers(building: Building, group: LiftGroup, traffic: Traffic,
-                      poisson: bool = False, tol: float = 1e-12) -> tuple[float, bool]:
+                      poisson: bool = True, tol: float = 1e-12) -> tuple[float, bool]:
     """Passengers per trip that carry the demand: the root of P = lambda RTT(P) / L.
 
     lambda is the arrival rate [persons/s] and L the number of cars. RTT(P) rises
@@ -433,9 +433,10 @@ def demand_passengers(building: Building, group: LiftGroup, traffic: Traffic,
 
 
 def demand_calculation(building: Building, group: LiftGroup, traffic: Traffic,
-                       poisson: bool = False) -> ClassicalResult:
+                       poisson: bool = True) -> ClassicalResult:
     """The classical calculation at the car load the demand sets (see
-    :func:`demand_passengers`), for any traffic mix."""
+    :func:`demand_passengers`), for any traffic mix; Poisson counts unless asked
+    otherwise, the one passenger model of every command."""
     p, saturated = demand_passengers(building, group, traffic, poisson)
     return round_trip_calculation(building, group, p, poisson, traffic, mode="demand",
                                   saturated=saturated)

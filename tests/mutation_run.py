@@ -63,6 +63,21 @@ EQUIVALENT = {
     "roundtrip.stream.x_run_stream__mutmut_87":
         "the multi-thread path, which mutmut's workers cannot take (NUMBA_NUM_THREADS=1); "
         "CI's two-thread determinism tests run it",
+    "roundtrip.threads.x_run_chains__mutmut_26":
+        "the multi-thread split, which mutmut's workers cannot take (NUMBA_NUM_THREADS=1); "
+        "CI's two-thread determinism tests run it",
+    "roundtrip.threads.x_run_chains__mutmut_36":
+        "the multi-thread split, as above",
+    "roundtrip.passengers.x_od_matrix__mutmut_9":
+        "no float dtype asked for: the populations are floats, and u / u.sum() is anyway",
+    "roundtrip.passengers.x_od_matrix__mutmut_17":
+        "= instead of += into a row of zeros",
+    "roundtrip.passengers.x_alias_table__mutmut_16":
+        "no dtype for arange: numpy's default integer is int64 on the platforms supported",
+    "roundtrip.montecarlo.x_meets_target__mutmut_5":
+        "< instead of <= against the interval target: equality of two computed floats",
+    "allocation.registry.xǁRuleǁallocate__mutmut_30":
+        "no table for a rule without one: no such rule reads its table",
     "roundtrip.stream.x_count_table__mutmut_70":
         "one more Poisson count kept beyond where 1 - CDF < 1e-16: drawn with probability "
         "below 1e-16",

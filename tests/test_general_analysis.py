@@ -133,6 +133,8 @@ def test_poisson_arrivals_equal_the_sum_over_poisson_counts(mix, mean):
     assert trip.highest_reversal_floor == pytest.approx(ref["highest"], abs=tail * 10 * scale)
     assert trip.lowest_reversal_floor == pytest.approx(ref["lowest"], abs=tail * 10 * scale)
     assert formula_rtt(PAIR, SLOW, trip) == pytest.approx(ref["time"], abs=tail * 100 * scale)
+    exact = round_trip_calculation(PAIR, SLOW, mean, poisson=True, traffic=traffic)
+    assert exact.exact_round_trip_time_s == pytest.approx(ref["time"], abs=tail * 100 * scale)
 
 
 @pytest.mark.parametrize("P", [0.5, 3.0, 8.0, 13.0])
@@ -252,3 +254,40 @@ def test_whether_one_floor_reaches_rated_speed_is_said_for_any_mix(rated_speed_m
     r = round_trip_calculation(building, group, 2.0,
                                traffic=Traffic(10.0, *MIXES["lunch 45/45/10"]))
     assert r.rated_speed_reached_in_one_floor is reached
+
+
+@pytest.mark.parametrize("mix", [m for m in MIXES if m != "up-peak"])
+@pytest.mark.parametrize("P", [1.3, 2.6])
+def test_a_real_fixed_load_is_the_mix_of_the_two_nearest_whole_loads(mix, P):
+    # Exact enumeration: a fixed real load P carries floor(P) passengers with probability
+    # 1 - frac and floor(P) + 1 with probability frac (the trip model's fixed counts,
+    # docs/trip_model.md), so the exact expected round trip is that mix of the two
+    # enumerated ones.
+    traffic = Traffic(10.0, *MIXES[mix])
+    lo, hi = math.floor(P), math.floor(P) + 1
+    frac = P - lo
+    want = ((1 - frac) * enumerate_fixed(TINY, SLOW, traffic, lo)[0]["time"]
+            + frac * enumerate_fixed(TINY, SLOW, traffic, hi)[0]["time"])
+    r = round_trip_calculation(TINY, SLOW, P, poisson=False, traffic=traffic)
+    assert r.exact_round_trip_time_s == pytest.approx(want, rel=1e-12)
+
+
+@pytest.mark.parametrize("mix, up_only", [("up-peak", True), ("down-peak", False)])
+def test_one_way_traffic_stops_one_way(mix, up_only):
+    # A fact of the model: all-incoming trips stop only going up, all-outgoing only going
+    # down, so the stops of the other direction are none and these are all of them.
+    trip = general_trip(od_matrix(TINY, Traffic(10.0, *MIXES[mix])), TINY.levels_m, 2.5, True)
+    one_way, other = ((trip.up_stops, trip.down_stops) if up_only
+                      else (trip.down_stops, trip.up_stops))
+    assert other == 0.0
+    assert one_way == pytest.approx(trip.expected_stops, rel=1e-12) and one_way > 0
+
+
+def test_the_classical_calculations_default_to_the_one_passenger_model():
+    # Issue of one baseline: every command uses Poisson counts per car unless --fixed;
+    # the library's defaults say the same.
+    traffic = Traffic(10.0, *MIXES["lunch 45/45/10"])
+    assert demand_calculation(TINY, SLOW, traffic).passenger_model == "poisson"
+    assert round_trip_calculation(TINY, SLOW, 2.0, traffic=traffic).passenger_model == "poisson"
+    assert demand_passengers(TINY, SLOW, traffic) == demand_passengers(TINY, SLOW, traffic,
+                                                                        True)

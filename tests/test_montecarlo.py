@@ -548,6 +548,15 @@ def test_demand_beyond_the_group_is_saturated_at_the_design_load():
     r = simulate_demand(b, SLOW_GROUP, Traffic(25.0), seed=3)
     assert r.saturated
     assert r.passengers_per_trip == pytest.approx(SLOW_GROUP.design_load_persons)
+    assert r.mode == "demand" and r.iterations == len(r.trace) >= 1
+
+
+def test_a_load_above_what_a_car_can_carry_is_refused_at_once():
+    b = CLASSICAL_BUILDINGS[0]
+    top = SLOW_GROUP.rated_load_persons
+    assert simulate_trips(b, SLOW_GROUP, top, trials=200, seed=1).passengers_per_trip == top
+    with pytest.raises(ValueError, match="passengers"):
+        simulate_trips(b, SLOW_GROUP, top + 0.01, trials=200, seed=1)
 
 
 def test_bad_arguments_are_refused():

@@ -281,6 +281,21 @@ def test_the_trial_options_reach_every_step(building, capsys, monkeypatch):
     rc, out, _ = run(capsys, "size", building(), "--cars", "1:2", "--max-trials", "50",
                      "--json")
     assert rc == 0
+    # the round-trip screen of size: every comparison and demand step gets --ci-target
+    import batchrounds.montecarlo as group_mc
+    compared = []
+    real_compare = group_mc.compare_rules
+
+    def compare_spy(*args, **kwargs):
+        compared.append(kwargs)
+        return real_compare(*args, **kwargs)
+
+    monkeypatch.setattr(group_mc, "compare_rules", compare_spy)
+    seen.clear()
+    rc, out, _ = run(capsys, "size", building(), "--cars", "1:2", "--round-trip-only",
+                     "--ci-target", "3", "--json")
+    assert rc == 0 and compared and seen
+    assert all(k["ci_target_pct"] == 3.0 for k in compared + seen)
 
 
 def test_messages_count_cars_in_words(tmp_path, capsys):

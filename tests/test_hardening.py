@@ -443,7 +443,8 @@ def test_two_reports_into_one_folder_leave_one_whole_set(building, tmp_path):
     assert embedded and all(e in pngs for e in embedded)
     import csv
     import io
-    csv_seeds = {row["seed"] for row in csv.DictReader(io.StringIO(files["sweep.csv"].decode()))}
+    csv_seeds = {row["run_seed"]
+                 for row in csv.DictReader(io.StringIO(files["sweep.csv"].decode()))}
     assert len(csv_seeds) == 1
     winner = int(csv_seeds.pop())
     assert any(r["stamp"]["seed"] == winner for r in results)

@@ -27,8 +27,7 @@ import cloudpickle
 from experiments import sweep as sweep_module
 from experiments.cli import main
 
-from .test_experiments import BUILDING
-from .test_tasks import fails_at
+from .test_tasks import fails_at, two_buildings  # noqa: F401 - a fixture
 
 # The test's own task wrappers travel to the workers by value (the workers need not
 # import the tests).
@@ -37,12 +36,8 @@ cloudpickle.register_pickle_by_value(__import__("tests.test_tasks", fromlist=["*
 
 
 @pytest.fixture
-def buildings(tmp_path):
-    a = tmp_path / "quarry.toml"
-    a.write_text(BUILDING.format(name="Quarry Mews"), encoding="utf-8")
-    b = tmp_path / "tannery.toml"
-    b.write_text(BUILDING.format(name="Tannery Yard").replace("11.0", "9.0"), encoding="utf-8")
-    return [str(a), str(b)]
+def buildings(two_buildings):
+    return [str(path) for path in two_buildings]
 
 
 @pytest.fixture(scope="module")

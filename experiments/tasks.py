@@ -138,6 +138,16 @@ class InProcess:
         return out
 
 
+def _check_finished(future, key: tuple) -> None:
+    """Raise what a cluster future that did not finish raised: an input or machine error as
+    it is, any other as the failure of the task ``key`` (after its retry)."""
+    if future.status != "finished":
+        exc = future.exception()
+        if _passes_through(exc):
+            raise exc
+        raise TaskFailed(key, exc)
+
+
 class DaskCluster:
     """Runs the tasks on a Dask cluster (``distributed``), results in task order."""
 
@@ -161,11 +171,7 @@ class DaskCluster:
         by_key = {f.key: t for f, t in zip(futures, tasks)}
         try:
             for future in as_completed(futures):
-                if future.status != "finished":
-                    exc = future.exception()
-                    if _passes_through(exc):
-                        raise exc
-                    raise TaskFailed(by_key[future.key].key, exc)
+                _check_finished(future, by_key[future.key].key)
                 if on_done is not None:
                     on_done()
             return self.client.gather(futures)
@@ -200,11 +206,7 @@ class DaskCluster:
                 submitted += 1
             for future in pending:
                 i = index[future.key]
-                if future.status != "finished":
-                    exc = future.exception()
-                    if _passes_through(exc):
-                        raise exc
-                    raise TaskFailed(keys[i], exc)
+                _check_finished(future, keys[i])
                 done[i] = future.result()
                 if on_done is not None:
                     on_done()

@@ -326,9 +326,9 @@ def test_a_traffic_section_without_a_demand_asks_for_one(tmp_path):
     data = variant(**{"traffic.arrival_rate_pct_5min": None, "traffic.incoming": 1.0})
     with pytest.raises(InputError) as info:
         load_scenario(write(tmp_path, data))
-    text = str(info.value)
-    assert "traffic.arrival_rate_pct_5min is missing: give the design demand, a rate > 0" in text
-    assert "[% of population per 5 min], or traffic.profile_pct_5min" in text
+    assert ("traffic.arrival_rate_pct_5min is missing: give the design demand, a rate > 0 "
+            "[% of population per 5 min], or traffic.profile_pct_5min, the rate of each "
+            "5-minute slot.") in info.value.problems
 
 
 def test_a_file_that_grows_while_it_is_read_is_refused(tmp_path, monkeypatch):

@@ -42,45 +42,23 @@ import subprocess
 import sys
 from collections import defaultdict
 
-#: Mutants left out of the rate, each with why: equivalent ones (they cannot change any
-#: result) and the few that mutmut's workers cannot reach (said so; another check runs them).
+#: Mutants that cannot change any result, with the reason (left out of the rate).
 EQUIVALENT = {
     "allocation.registry.x__compile_policy__mutmut_7":
         "the policy compiled with numba's reference-counting runtime: the same results, "
         "only slower",
     "allocation.registry.x__unknown__mutmut_8":
         "three close matches asked for instead of one; only the first is shown",
-    "allocation.sectors.x_band_round_trip_s__mutmut_42":
-        "the clip's lower bound 0 dropped: 1 - F below a floor is >= 0 but for rounding "
-        "(1e-16) at a top floor of no population, a change of 1e-15 in the band cost",
     "allocation.sectors.x_floor_bands__mutmut_102":
         "one more row in the table of cuts, never read",
-    "roundtrip.stream.x_count_table__mutmut_80":
-        "1.0 written one entry early: the table's last count (probability below 1e-16) can "
-        "no longer be drawn",
-    "roundtrip.stream.x_run_stream__mutmut_45":
-        "no default for the first next(): a run always has a first part",
-    "roundtrip.stream.x_run_stream__mutmut_87":
-        "the multi-thread path, which mutmut's workers cannot take (NUMBA_NUM_THREADS=1); "
-        "CI's two-thread determinism tests run it",
-    "roundtrip.threads.x_run_chains__mutmut_26":
-        "the multi-thread split, which mutmut's workers cannot take (NUMBA_NUM_THREADS=1); "
-        "CI's two-thread determinism tests run it",
-    "roundtrip.threads.x_run_chains__mutmut_36":
-        "the multi-thread split, as above",
     "roundtrip.passengers.x_od_matrix__mutmut_9":
         "no float dtype asked for: the populations are floats, and u / u.sum() is anyway",
-    "roundtrip.passengers.x_od_matrix__mutmut_17":
-        "= instead of += into a row of zeros",
     "roundtrip.passengers.x_alias_table__mutmut_16":
         "no dtype for arange: numpy's default integer is int64 on the platforms supported",
     "roundtrip.montecarlo.x_meets_target__mutmut_5":
         "< instead of <= against the interval target: equality of two computed floats",
     "allocation.registry.xǁRuleǁallocate__mutmut_30":
         "no table for a rule without one: no such rule reads its table",
-    "roundtrip.stream.x_count_table__mutmut_70":
-        "one more Poisson count kept beyond where 1 - CDF < 1e-16: drawn with probability "
-        "below 1e-16",
 }
 
 

@@ -85,14 +85,20 @@ def test_size_on_two_workers_equals_the_in_process_tables_byte_for_byte(building
     assert any(x["found"] and x["cars"] < 5 for x in d["designs"])
 
 
+def first_time(marker: str) -> bool:
+    """True for the first caller on any worker only: it creates the marker file."""
+    try:
+        os.close(os.open(marker, os.O_CREAT | os.O_EXCL | os.O_WRONLY))
+    except FileExistsError:
+        return False
+    return True
+
+
 def kill_once(marker: str, function, **kwargs):
     """Kill this worker process the first time any worker runs it (the marker file says
     it happened), then run ``function``: a worker lost mid-run."""
-    try:
-        fd = os.open(marker, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
-    except FileExistsError:
+    if not first_time(marker):
         return function(**kwargs)
-    os.close(fd)
     os.kill(os.getpid(), signal.SIGKILL)
     time.sleep(60)                                       # never reached
 
@@ -119,11 +125,8 @@ def test_a_worker_killed_mid_run_leaves_a_complete_correct_result(buildings, tmp
 def fails_once(marker: str, function, **kwargs):
     """Raise the first time any worker runs it (the marker file says it happened), then run
     ``function``: a passing fault."""
-    try:
-        fd = os.open(marker, os.O_CREAT | os.O_EXCL | os.O_WRONLY)
-    except FileExistsError:
+    if not first_time(marker):
         return function(**kwargs)
-    os.close(fd)
     raise ConnectionResetError("a passing fault, made by the test")
 
 

@@ -267,30 +267,27 @@ def test_an_adaptive_run_stops_at_the_memory_limit(building, capsys, monkeypatch
 def test_the_trial_options_reach_every_step(building, capsys, monkeypatch):
     # Before: `size` and `report` ignored --max-trials, and compare's demand step ignored
     # --trials, --ci-target and --max-trials.
+    import batchrounds.montecarlo as group_mc
     import roundtrip.montecarlo as mc
-    seen = []
-    real = mc.simulate_demand
 
-    def spy(*args, **kwargs):
-        seen.append(kwargs)
-        return real(*args, **kwargs)
+    def spy(module, name):
+        """The keyword arguments of every call of ``module.name`` from now on."""
+        calls, real = [], getattr(module, name)
 
-    monkeypatch.setattr(mc, "simulate_demand", spy)
+        def record(*args, **kwargs):
+            calls.append(kwargs)
+            return real(*args, **kwargs)
+        monkeypatch.setattr(module, name, record)
+        return calls
+
+    seen = spy(mc, "simulate_demand")
     assert run(capsys, "compare", building(), "--trials", "30", "--json")[0] == 0
     assert seen and seen[-1]["trials"] == 30
     rc, out, _ = run(capsys, "size", building(), "--cars", "1:2", "--max-trials", "50",
                      "--json")
     assert rc == 0
     # the round-trip screen of size: every comparison and demand step gets --ci-target
-    import batchrounds.montecarlo as group_mc
-    compared = []
-    real_compare = group_mc.compare_rules
-
-    def compare_spy(*args, **kwargs):
-        compared.append(kwargs)
-        return real_compare(*args, **kwargs)
-
-    monkeypatch.setattr(group_mc, "compare_rules", compare_spy)
+    compared = spy(group_mc, "compare_rules")
     seen.clear()
     rc, out, _ = run(capsys, "size", building(), "--cars", "1:2", "--round-trip-only",
                      "--ci-target", "3", "--json")

@@ -508,7 +508,7 @@ class Decision:
                                < saving["installation_conventional"])
                     if smaller:
                         text += (": the same number of cars, and destination control's are a "
-                                 f"smaller installation ({sizing['cost_order'].split(', then ')[-1]}"
+                                 f"smaller installation ({saving['installation_measure']}"
                                  f" {saving['installation_destination']:g} against "
                                  f"{saving['installation_conventional']:g}), a saving to weigh "
                                  "against the cost of destination control.")

@@ -411,7 +411,9 @@ def size_by_service(scenario: Scenario, destination_control: str, criterion, car
         size = (lambda d: installation_size(d["rated_load_persons"], d["rated_speed_mps"],
                                             cost_weight))
         savings = {"cars_saved": conv["cars"] - dc["cars"], "basis": "peak",
-                   "installation_conventional": size(conv), "installation_destination": size(dc)}
+                   "installation_conventional": size(conv), "installation_destination": size(dc),
+                   "installation_measure": ("rated load x speed" if cost_weight is None
+                                            else f"rated load + {cost_weight:g} x speed")}
     return {"criterion": criterion.to_dict(), "demand_pct_5min": demand, "designs": designs,
             "tried": tried, "savings": savings, "times_scale_with_car_size": scale_times,
             "cost_order": ("cars, then rated load x speed" if cost_weight is None

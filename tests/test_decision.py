@@ -297,7 +297,8 @@ def test_verdict_claims_a_saving_only_from_the_peak_sizing():
                           {"control": DC, "found": True, "cars": 6, "rated_load_persons": 16,
                            "rated_speed_mps": 2.0}],
               "savings": {"cars_saved": 0, "basis": "peak", "installation_conventional": 42.5,
-                          "installation_destination": 32.0},
+                          "installation_destination": 32.0,
+                          "installation_measure": "rated load x speed"},
               "cost_order": "cars, then rated load x speed"}
     v = d.verdict(sizing)
     assert not v["worth_specifying"] and v["cars_saved"] == 0

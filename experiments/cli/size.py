@@ -117,9 +117,8 @@ def _print_service(s: dict) -> None:
               f"{saving['cars_saved']:+d} cars)")
         if (saving["cars_saved"] == 0 and saving.get("installation_destination") is not None
                 and saving["installation_destination"] < saving["installation_conventional"]):
-            measure = s["cost_order"].split(", then ")[-1]
             print(f"- with the same cars, destination control's installation is smaller "
-                  f"({measure} {saving['installation_destination']:g} against "
+                  f"({saving['installation_measure']} {saving['installation_destination']:g} against "
                   f"{saving['installation_conventional']:g})")
     for x in s["designs"]:
         if not x["found"]:
